@@ -44,6 +44,7 @@ import sys
 import threading
 import time
 import tomllib
+import types
 import typing
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
@@ -331,10 +332,9 @@ def _option_types() -> dict[str, str]:
     kinds = {}
     for name in ScreenConfig.option_names():
         hint = hints[name]
-        args = typing.get_args(hint)
+        args = typing.get_args(hint) if typing.get_origin(hint) in (typing.Union, types.UnionType) else ()
         optional = type(None) in args
-        base = [a for a in args if a is not type(None)] or [hint]
-        base = base[0]
+        base = ([a for a in args if a is not type(None)] or [hint])[0]
         if typing.get_origin(base) is tuple:
             kind = "numbers"
         elif base is bool:
@@ -953,37 +953,47 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
                 for label in present:
                     part = f"{spec.by}-{label if label is not None else 'missing'}"
                     drafts.append((stem + (part,), dict(fields, group=label)))
+    unique_drafts, identities = [], set()
+    for parts, fields in drafts:
+        identity = _identity(fields)
+        if identity not in identities:  # the same file listed twice with the same settings
+            identities.add(identity)
+            unique_drafts.append((parts, fields))
+    drafts = unique_drafts
     names = _unique_names(drafts)
     return [Unit(name=name, **fields) for name, (_, fields) in zip(names, drafts)]
 
 
-def _unique_names(drafts: list[tuple[tuple[str, ...], dict]]) -> list[str]:
-    """Join name parts; make clashes unique by the parent folder, then the suffix, then a short hash."""
-    names = ["__".join(_safe(p) for p in parts) for parts, _ in drafts]
-    reserved = {INDEX_STEM}
+def _identity(fields: dict) -> str:
+    config = fields["config"]
+    return json.dumps(
+        [str(Path(fields["path"]).resolve()), fields.get("layer"), fields.get("by"), fields.get("group"),
+         fields.get("x"), fields.get("y"), config.as_record()],
+        sort_keys=True, default=str,
+    )
 
-    def clashes(current: list[str]) -> set[int]:
+
+def _unique_names(drafts: list[tuple[tuple[str, ...], dict]]) -> list[str]:
+    """Join name parts; make clashes unique by parent folder, then file suffix, then a short hash."""
+    names = ["__".join(_safe(p) for p in parts) for parts, _ in drafts]
+
+    def clash_groups(current: list[str]) -> list[list[int]]:
         seen: dict[str, list[int]] = {}
         for i, name in enumerate(current):
             seen.setdefault(name.lower(), []).append(i)
-        return {i for group in seen.values() if len(group) > 1 for i in group} | {
-            i for i, n in enumerate(current) if n.lower() in reserved
-        }
+        return [group for key, group in seen.items() if len(group) > 1 or key == INDEX_STEM]
 
     for step in ("folder", "suffix", "hash"):
-        bad = clashes(names)
-        if not bad:
-            break
-        for i in bad:
-            parts, fields = drafts[i]
-            path = fields["path"]
-            if step == "folder":
-                names[i] = f"{_safe(path.parent.name)}__{names[i]}"
-            elif step == "suffix":
-                names[i] = f"{names[i]}_{_safe(path.suffix.lstrip('.'))}"
-            else:
-                identity = json.dumps([str(path.resolve()), fields.get("layer"), fields.get("group")])
-                names[i] = f"{names[i]}-{hashlib.sha1(identity.encode()).hexdigest()[:8]}"
+        for group in clash_groups(names):
+            paths = [Path(drafts[i][1]["path"]) for i in group]
+            for i, path in zip(group, paths):
+                if step == "folder" and len({p.parent.resolve() for p in paths}) == len(paths):
+                    names[i] = f"{_safe(path.parent.name)}__{names[i]}"
+                elif step == "suffix" and len({p.suffix.lower() for p in paths}) == len(paths):
+                    names[i] = f"{names[i]}_{_safe(path.suffix.lstrip('.'))}"
+                elif step == "hash":
+                    digest = hashlib.sha1(_identity(drafts[i][1]).encode()).hexdigest()[:8]
+                    names[i] = f"{names[i]}-{digest}"
     return names
 
 

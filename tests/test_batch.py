@@ -1,0 +1,334 @@
+"""Tests of pointsift.batch: plans, expansion into units, resume, parallel runs, the index.
+
+Every input is invented inside the test (tmp_path): smooth synthetic water
+levels on scattered points, in a projected CRS (EPSG:32633, UTM zone 33N).
+Outside references: :mod:`tomllib` and a plain line count for plan
+positions, pandas ``groupby`` for groups, :mod:`hashlib` for content hashes,
+pyogrio / pyproj / shapely for reading back what was written.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import textwrap
+import tomllib
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+import shapely
+from pyproj import Transformer
+
+from pointsift import batch
+from pointsift.config import ScreenConfig
+from pointsift.errors import ConfigError
+
+CRS = "EPSG:32633"
+
+
+def synthetic_points(n: int = 120, seed: int = 0, *, crs: str | None = CRS, extra: dict | None = None) -> gpd.GeoDataFrame:
+    """Scattered points with a smooth level surface plus small noise (invented data)."""
+    rng = np.random.default_rng(seed)
+    x = 500_000 + rng.uniform(0, 20_000, n)
+    y = 5_000_000 + rng.uniform(0, 20_000, n)
+    level = 100 + 0.001 * (x - 500_000) - 0.0005 * (y - 5_000_000) + rng.normal(0, 0.2, n)
+    frame = pd.DataFrame({"well": [f"W{seed}-{i:04d}" for i in range(n)], "level_m": level})
+    for name, values in (extra or {}).items():
+        frame[name] = values
+    return gpd.GeoDataFrame(frame, geometry=gpd.points_from_xy(x, y), crs=crs)
+
+
+def write_gpkg(path: Path, layers: dict[str, gpd.GeoDataFrame]) -> Path:
+    for name, frame in layers.items():
+        pyogrio.write_dataframe(frame, path, layer=name, driver="GPKG", append=path.exists())
+    return path
+
+
+def line_of(text: str, fragment: str, start: int = 0) -> int:
+    """1-based number of the first line containing ``fragment`` at or after line ``start``."""
+    lines = text.splitlines()
+    for number in range(start, len(lines)):
+        if fragment in lines[number]:
+            return number + 1
+    raise AssertionError(f"{fragment!r} not in text")
+
+
+# ---------------------------------------------------------------------------
+# plans
+
+
+def test_plan_reads_defaults_overrides_lengths_and_relative_paths(tmp_path):
+    data_dir = tmp_path / "data"
+    data_dir.mkdir()
+    write_gpkg(data_dir / "north.gpkg", {"wells": synthetic_points(seed=1)})
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text(textwrap.dedent("""
+        [batch]
+        out_dir = "screened"
+        jobs = 2
+
+        [defaults]
+        value = "level_m"
+        k = 12
+        coincident_tolerance = "2 ft"
+
+        [[input]]
+        path = "data/*.gpkg"
+
+        [[input]]
+        path = "data/north.gpkg"
+        name = "north-band"
+        graph = "band"
+        within = "1.5km"
+        sentinels = [-9999, 0]
+    """))
+    plan = batch.load_plan(plan_path)
+    assert plan.out_dir == tmp_path / "screened"
+    assert plan.jobs == 2
+    first, second = plan.inputs
+    assert first.config == ScreenConfig(value="level_m", k=12, coincident_tolerance=0.6096)  # 1 ft = 0.3048 m exactly (international foot)
+    assert second.config.graph == "band"
+    assert second.config.within == 1500.0  # 1 km = 1000 m (SI)
+    assert second.config.sentinels == (-9999.0, 0.0)
+    assert second.config.k == 12  # inherited from [defaults]
+    assert second.name == "north-band"
+    # the command line takes precedence over the plan
+    assert batch.load_plan(plan_path, jobs=1, out_dir=tmp_path / "elsewhere").jobs == 1
+    assert batch.load_plan(plan_path, out_dir=tmp_path / "elsewhere").out_dir == tmp_path / "elsewhere"
+
+
+PLAN_WITH_MISTAKES = """\
+# quarterly screening
+[batch]
+out_dir = "out"
+jobs = 0
+
+[defaults]
+value = "level_m"
+detrend = "quadratic"
+
+[[input]]
+path = "good.gpkg"
+layers = [
+  "wells",   # a comment with ] inside
+  "springs",
+]
+
+[[input]]
+path = "good.gpkg"
+neighbors = 8
+graph = "bnad"
+within = "5 leagues"
+
+[[input]]
+path = ["good.gpkg", "missing/*.gpkg"]
+"""
+
+
+def test_plan_errors_name_line_key_and_valid_choices(tmp_path):
+    write_gpkg(tmp_path / "good.gpkg", {"wells": synthetic_points()})
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text(PLAN_WITH_MISTAKES)
+    tomllib.loads(PLAN_WITH_MISTAKES)  # the reference parser accepts the syntax: only values are wrong
+    with pytest.raises(ConfigError) as caught:
+        batch.load_plan(plan_path)
+    message = str(caught.value)
+    text = PLAN_WITH_MISTAKES
+    second = line_of(text, "[[input]]", line_of(text, "[[input]]"))  # header of the second entry
+    # line numbers counted independently in the text
+    assert f"plan.toml line {line_of(text, 'jobs = 0')}, [batch], key 'jobs'" in message
+    assert f"plan.toml line {line_of(text, 'detrend')}, [defaults], key 'detrend'" in message
+    assert "choose one of none, auto, surface1, surface2, polish" in message  # valid choices listed
+    assert f"plan.toml line {line_of(text, 'neighbors')}, [[input]] #2, key 'neighbors': unknown key." in message
+    assert "Did you mean 'min_neighbours'?" in message
+    assert "Valid keys:" in message and " k," in message
+    assert f"plan.toml line {line_of(text, 'graph = ', second)}, [[input]] #2, key 'graph'" in message
+    assert "choose one of knn, band" in message
+    assert f"line {line_of(text, 'within', second)}, [[input]] #2, key 'within'" in message
+    assert "(m, km, ft, mi)" in message
+    assert f"line {line_of(text, 'missing/')}, [[input]] #3, key 'path': the pattern 'missing/*.gpkg' matches no file" in message
+    # every mistake is reported at once, none twice
+    assert message.count("\n  - ") == 6
+
+
+@pytest.mark.parametrize(
+    "text, expected",
+    [
+        ("[defaults]\nvalue = 'level_m'\n", r"lists no inputs"),
+        ("[defaults]\nvaule = 'level_m'\n[[input]]\npath = 'good.gpkg'\n",
+         r"line 2, \[defaults\], key 'vaule': unknown key. Did you mean 'value'\?"),
+        ("[[input]]\npath = 'good.gpkg'\n", r"no value column"),
+        ("[batch]\nout_dir = 'o'\n[input]\npath = 'good.gpkg'\nvalue = 'v'\n", r"\[\[input\]\] table \(double brackets\)"),
+        ("[defaults]\nvalue = 'v'\nk = 12\nmin_neighbours = 13\n[[input]]\npath = 'good.gpkg'\n",
+         r"line 4, \[defaults\], key 'min_neighbours': min_neighbours \(13\) cannot exceed k \(12\)"),
+        ("[defaults]\nvalue = 'v'\n[[input]]\npath = 'good.gpkg'\nx = 'e'\n", r"key 'x': x and y .* set both"),
+        ("[defaults]\nvalue = 'v'\n[[input]]\npath = 'good.gpkg'\nname = '../up'\n", r"key 'name': '../up' is not usable"),
+        ("[defaults]\nvalue = 'v'\nseed = 1.5\n[[input]]\npath = 'good.gpkg'\n", r"key 'seed': expects a whole number"),
+        ("value = 'v'\n[[input]]\npath = 'good.gpkg'\n", r"line 1, top level, key 'value': unknown table or key"),
+    ],
+)
+def test_plan_error_messages(tmp_path, text, expected):
+    write_gpkg(tmp_path / "good.gpkg", {"wells": synthetic_points()})
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text(text)
+    with pytest.raises(ConfigError, match=expected):
+        batch.load_plan(plan_path, out_dir=tmp_path / "out")
+
+
+def test_plan_syntax_error_and_missing_file(tmp_path):
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text("[defaults]\nvalue = level_m\n")
+    # tomllib, the reference parser, reports the position of the syntax error
+    with pytest.raises(tomllib.TOMLDecodeError, match="line 2"):
+        tomllib.loads(plan_path.read_text())
+    with pytest.raises(ConfigError, match=r"plan.toml is not valid TOML: .*line 2"):
+        batch.load_plan(plan_path)
+    with pytest.raises(ConfigError, match="does not exist"):
+        batch.load_plan(tmp_path / "nowhere.toml")
+
+
+def test_plan_from_args_builds_the_same_plan_as_toml(tmp_path):
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points()})
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text(f'[defaults]\nvalue = "level_m"\nk = 8\n[[input]]\npath = "{tmp_path / "a.gpkg"}"\nby = "well"\n')
+    from_toml = batch.load_plan(plan_path, out_dir=tmp_path / "out")
+    from_args = batch.plan_from_args([str(tmp_path / "a.gpkg")], out_dir=tmp_path / "out",
+                                     options={"value": "level_m", "k": 8}, by="well")
+    assert from_args.inputs[0].config == from_toml.inputs[0].config
+    assert from_args.inputs[0].by == from_toml.inputs[0].by == "well"
+    with pytest.raises(ConfigError, match="command line, \\[defaults\\], key 'k': k must be a whole number from 3 to 100"):
+        batch.plan_from_args([str(tmp_path / "a.gpkg")], out_dir=tmp_path / "out", options={"value": "v", "k": 1})
+
+
+# ---------------------------------------------------------------------------
+# expansion
+
+
+def test_expand_files_layers_groups_and_unique_names(tmp_path):
+    north, south = tmp_path / "north", tmp_path / "south"
+    north.mkdir()
+    south.mkdir()
+    campaigns = np.repeat(np.array(["2026-03-02", "2026-06-01", "2026-09-07"], dtype="datetime64[ns]"), 40)
+    networks = np.where(np.arange(120) % 2 == 0, "A", "B").astype(object)
+    networks[5] = None
+    write_gpkg(north / "wells.gpkg", {
+        "shallow": synthetic_points(seed=1, extra={"campaign": campaigns}),
+        "deep": synthetic_points(seed=2, extra={"network": networks}),
+    })
+    write_gpkg(south / "wells.gpkg", {"wells": synthetic_points(seed=3)})
+    out_dir = north / "screened"  # inside an input folder: never read back as input
+    out_dir.mkdir()
+    write_gpkg(out_dir / "old.gpkg", {"screened": synthetic_points(seed=4)})
+    plan = batch.parse_plan(
+        {
+            "defaults": {"value": "level_m"},
+            "input": [
+                {"path": ["north", "south/*.gpkg"]},
+                {"path": "north/wells.gpkg", "layers": ["shallow"], "by": "campaign", "name": "shallow-by-date"},
+                {"path": "north/wells.gpkg", "layers": ["deep", "nothere"], "by": "network"},
+            ],
+        },
+        base_dir=tmp_path,
+        out_dir=out_dir,
+    )
+    units = batch.expand_units(plan)
+    names = [u.name for u in units]
+    assert names == [
+        "wells__shallow",
+        "wells__deep",
+        "wells",
+        "shallow-by-date__shallow__campaign-2026-03-02",
+        "shallow-by-date__shallow__campaign-2026-06-01",
+        "shallow-by-date__shallow__campaign-2026-09-07",
+        "wells__nothere",
+        "wells__deep__network-A",
+        "wells__deep__network-B",
+        "wells__deep__network-missing",
+    ]
+    assert not any("old" in n for n in names)
+    missing_layer = next(u for u in units if u.layer == "nothere")
+    assert "layer 'nothere' is not in wells.gpkg; its layers are: shallow, deep" in missing_layer.problem
+    # groups agree with pandas groupby on the same column (reference)
+    frame = pyogrio.read_dataframe(north / "wells.gpkg", layer="deep")
+    by_pandas = frame.groupby("network", dropna=False).size()
+    grouped = [u for u in units if u.by == "network" and u.problem is None]
+    assert len(grouped) == len(by_pandas)
+    dated = [u.group for u in units if u.by == "campaign"]
+    assert dated == [str(d)[:10] for d in np.unique(campaigns)]
+
+
+def test_expand_records_unreadable_file_and_missing_group_column(tmp_path):
+    write_gpkg(tmp_path / "good.gpkg", {"wells": synthetic_points()})
+    (tmp_path / "broken.gpkg").write_bytes(b"SQLite format 3\x00" + bytes(2000))
+    plan = batch.parse_plan({"defaults": {"value": "level_m"}, "input": [
+        {"path": "*.gpkg"}, {"path": "good.gpkg", "by": "netwrok"}]}, base_dir=tmp_path, out_dir=tmp_path / "out")
+    units = batch.expand_units(plan)
+    broken = next(u for u in units if u.path.name == "broken.gpkg")
+    assert broken.problem and "broken.gpkg" in broken.problem
+    assert next(u for u in units if u.path.name == "good.gpkg" and u.by is None).problem is None
+    assert len({u.name for u in units}) == 3  # one file listed twice still gets two distinct outputs
+    clash = [u for u in units if u.by == "netwrok"]
+    assert len(clash) == 1 and "grouping column 'netwrok' is not in good.gpkg" in clash[0].problem
+    assert "its columns are: well, level_m" in clash[0].problem
+
+
+def test_group_labels_match_pandas_groups():
+    # reference: pandas groupby over the same values (dropna=False keeps the empty group)
+    values = pd.Series([3.0, 1.0, np.nan, 3.0, 2.0])
+    labels = batch.group_labels(values)
+    assert labels == ["3", "1", None, "3", "2"]
+    assert len(set(labels)) == values.groupby(values, dropna=False).ngroups
+    stamps = pd.Series(pd.to_datetime(["2026-01-05 10:30", "2026-01-05 00:00", None]))
+    assert batch.group_labels(stamps) == ["2026-01-05T10:30:00", "2026-01-05T00:00:00", None]
+
+
+# ---------------------------------------------------------------------------
+# fingerprints and the index
+
+
+def test_fingerprint_covers_content_options_version_not_path(tmp_path):
+    config = ScreenConfig(value="level_m")
+    unit = batch.Unit(name="a", path=tmp_path / "a.gpkg", display="a.gpkg", config=config)
+    moved = batch.Unit(name="a", path=tmp_path / "elsewhere" / "a.gpkg", display="elsewhere/a.gpkg", config=config)
+    content = hashlib.sha256(b"some bytes").hexdigest()  # reference: hashlib
+    base = batch.unit_fingerprint(unit, content, "1.0")
+    assert len(base) == 64 and int(base, 16) >= 0
+    assert batch.unit_fingerprint(moved, content, "1.0") == base
+    assert batch.unit_fingerprint(unit, hashlib.sha256(b"other bytes").hexdigest(), "1.0") != base
+    assert batch.unit_fingerprint(unit, content, "1.1") != base
+    changed = batch.Unit(name="a", path=unit.path, display="a.gpkg", config=config.replace(k=11))
+    assert batch.unit_fingerprint(changed, content, "1.0") != base
+    grouped = batch.Unit(name="a", path=unit.path, display="a.gpkg", config=config, by="net", group="A")
+    assert batch.unit_fingerprint(grouped, content, "1.0") != base
+
+
+def test_index_written_as_csv_and_lonlat_extent_layer(tmp_path):
+    config = ScreenConfig(value="level_m")
+    units = [batch.Unit(name=f"u{i}", path=tmp_path / f"u{i}.gpkg", display=f"u{i}.gpkg", config=config)
+             for i in range(3)]
+    bounds = (500_000.0, 5_000_000.0, 520_000.0, 5_020_000.0)
+    # reference: pyproj's own transform_bounds for the extent in longitude/latitude
+    lonlat = Transformer.from_crs(CRS, "EPSG:4326", always_xy=True).transform_bounds(*bounds, densify_pts=21)
+    outcomes = [
+        batch.UnitOutcome(units[0], "done", counts={"suspect": 1, "review": 2, "ok": 96, "unscreened": 1},
+                          points=100, seconds=0.5, output="u0.gpkg", input_crs="EPSG:32633",
+                          extent_lonlat=batch._lonlat_extent(bounds, CRS)),
+        batch.UnitOutcome(units[1], "skipped-up-to-date", counts={"suspect": 0, "review": 0, "ok": 5, "unscreened": 0},
+                          points=5, output="u1.gpkg"),
+        batch.UnitOutcome(units[2], "failed", message="Layer has no CRS. Pass crs."),
+    ]
+    csv_path, gpkg_path = batch.write_index(outcomes, tmp_path)
+    table = pd.read_csv(csv_path, keep_default_na=False, dtype=str)
+    assert list(table.columns) == list(batch.INDEX_COLUMNS)
+    assert table["outcome"].tolist() == ["done", "skipped-up-to-date", "failed"]
+    assert table.loc[2, "message"] == "Layer has no CRS. Pass crs."
+    assert table.loc[0, "suspect"] == "1" and table.loc[2, "suspect"] == ""
+    layer = pyogrio.read_dataframe(gpkg_path, layer=batch.INDEX_LAYER)
+    assert layer.crs.to_epsg() == 4326
+    np.testing.assert_allclose(layer.geometry.iloc[0].bounds, lonlat, rtol=0, atol=1e-9)
+    assert layer.geometry.iloc[2] is None or layer.geometry.iloc[2].is_empty
+    assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp") or ".tmp." in p.name]
