@@ -1,0 +1,1 @@
+"""Screening and exploratory methods: pure functions over arrays and a neighbour graph."""
