@@ -1,0 +1,763 @@
+"""Lag pairs: pairs of points by separation and direction, and a robust screen of them.
+
+On a regular grid one plots each value against the value one step east (an
+h-scatterplot) and looks for pairs far from the 1:1 line. Irregular points have
+no "one step east", so pairs are formed by separation and direction with
+tolerances, as for an experimental variogram: a pair belongs to the lag class
+of centre ``k * h`` when its separation lies within the lag tolerance, and to
+a direction when its azimuth lies within the angular tolerance of it.
+
+Sources
+-------
+- h-scatterplots, lag and angular tolerances for irregular data: Isaaks, E. H.
+  and Srivastava, R. M. (1989), *An Introduction to Applied Geostatistics*,
+  Oxford University Press, chapters 4 and 7 (from memory); Deutsch, C. V. and
+  Journel, A. G. (1998), *GSLIB*, 2nd ed., section III.1 (from memory).
+- Robust scale: the median absolute deviation with the consistency factor
+  1.4826, falling back to the interquartile range over 1.349 (Rousseeuw, P. J.
+  and Croux, C. (1993), *JASA* 88, 1273-1283).
+
+Conventions
+-----------
+Directions are axial: a pair is counted once, and oriented so that the head
+lies east of the tail, or due north of it when both share an x coordinate.
+Azimuths are degrees clockwise from north in ``[0, 180)``: 0 is S-N (tail to
+the south), 45 SW-NE, 90 W-E (tail to the west), 135 NW-SE (tail to the
+north-west, the SE-NW axis). Coincident points (separation 0) have no
+azimuth; they belong to no lag class here (see
+:mod:`pointsift.methods.coincident`).
+
+Pairs come from k-d tree ball queries (:class:`scipy.spatial.cKDTree`), never
+from all n^2 pairs. When more pairs lie in reach than the pair budget allows,
+a seeded subsample is drawn (first of points, when the excess is large, then
+of pairs) and stated in :attr:`PairSet.record`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.spatial import cKDTree
+
+from ..errors import ConfigError, InputError
+
+__all__ = [
+    "DEFAULT_DIRECTIONS",
+    "DIRECTION_NAMES",
+    "DEFAULT_PAIR_BUDGET",
+    "PairSet",
+    "LagPairScreen",
+    "find_pairs",
+    "axial_difference",
+    "direction_label",
+    "point_spacing",
+    "lag_class_edges",
+    "screen_lag_pairs",
+    "lag_pairs_layer",
+    "plot_lag_pairs",
+]
+
+#: Default directions as azimuths (degrees clockwise from north): W-E, SW-NE, S-N, SE-NW.
+DEFAULT_DIRECTIONS: tuple[float, ...] = (90.0, 45.0, 0.0, 135.0)
+
+#: Plain names of the default directions.
+DIRECTION_NAMES: dict[float, str] = {90.0: "W-E", 45.0: "SW-NE", 0.0: "S-N", 135.0: "SE-NW"}
+
+#: Pairs kept by :func:`find_pairs` before seeded subsampling starts.
+DEFAULT_PAIR_BUDGET = 20_000_000
+
+# When the pairs in reach exceed the budget by more than this factor, points
+# are subsampled first: enumerating every pair only to thin it would cost
+# time in proportion to all pairs in reach.
+_POINT_SAMPLING_FACTOR = 8.0
+# Ordered pairs enumerated per chunk of tail points (bounds memory).
+_CHUNK_PAIRS = 4_000_000
+# Upper quartile of the standard normal: MAD / this (about 1.4826 MAD) and
+# IQR / (2 * this) estimate the standard deviation of normal differences.
+_NORMAL_Q75 = 0.6744897501960817
+# Relative slack on the tree's search radius; the exact test is redone on
+# our own distances so points on the radius are judged by one formula.
+_RADIUS_SLACK = 1e-9
+
+
+@dataclass(frozen=True)
+class PairSet:
+    """Pairs of points within a search radius, oriented tail -> head.
+
+    Attributes
+    ----------
+    tail, head : ndarray of int64
+        Row numbers (into the ``xy`` passed to :func:`find_pairs`) of the two
+        ends. The head lies east of the tail, or due north when ``dx == 0``;
+        coincident points keep the lower row as tail.
+    distance : ndarray of float64
+        Separation, ``hypot(dx, dy)``.
+    azimuth : ndarray of float64
+        Axial azimuth of tail -> head in degrees ``[0, 180)``; NaN for coincident points.
+    max_distance : float
+        Search radius (pairs with ``distance <= max_distance`` were searched).
+    pairs_in_reach : int
+        Number of pairs within the radius before any subsampling.
+    point_fraction, pair_fraction : float
+        Sampling probabilities applied to points, then to pairs (1.0 = none).
+    seed : int
+        Seed of the subsampling draws.
+    """
+
+    tail: np.ndarray
+    head: np.ndarray
+    distance: np.ndarray
+    azimuth: np.ndarray
+    max_distance: float
+    pairs_in_reach: int
+    point_fraction: float = 1.0
+    pair_fraction: float = 1.0
+    seed: int = 0
+
+    @property
+    def size(self) -> int:
+        """Number of pairs kept."""
+        return int(self.tail.size)
+
+    @property
+    def sampled(self) -> bool:
+        """True when the pairs are a subsample of the pairs in reach."""
+        return self.size < self.pairs_in_reach
+
+    @property
+    def record(self) -> dict:
+        """Plain-value description of the pair search for the run record."""
+        return {
+            "max_distance": float(self.max_distance),
+            "pairs_in_reach": int(self.pairs_in_reach),
+            "pairs_used": self.size,
+            "sampled": bool(self.sampled),
+            "point_fraction": float(self.point_fraction),
+            "pair_fraction": float(self.pair_fraction),
+            "seed": int(self.seed),
+        }
+
+
+def _as_xy(xy) -> np.ndarray:
+    xy = np.asarray(xy, dtype=float)
+    if xy.ndim != 2 or xy.shape[1] != 2:
+        raise InputError(f"xy must be an (n, 2) array of x, y coordinates, got shape {xy.shape}.")
+    return xy
+
+
+def find_pairs(
+    xy,
+    max_distance: float,
+    *,
+    pair_budget: int = DEFAULT_PAIR_BUDGET,
+    seed: int = 0,
+) -> PairSet:
+    """Find every pair of points not farther apart than ``max_distance``.
+
+    Uses k-d tree ball queries in chunks of tail points, so memory stays
+    bounded and no n x n matrix is formed. Rows with a non-finite coordinate
+    take part in no pair.
+
+    Parameters
+    ----------
+    xy : array_like, shape (n, 2)
+        Coordinates in a metric CRS.
+    max_distance : float
+        Search radius; pairs with separation ``<= max_distance`` are returned.
+    pair_budget : int
+        At most this many pairs are kept. Above it a seeded subsample is
+        drawn: uniformly over pairs, after a uniform subsample of points when
+        the pairs in reach exceed the budget more than eightfold.
+    seed : int
+        Seed of the subsampling draws.
+
+    Returns
+    -------
+    PairSet
+        Pairs sorted by tail, then head.
+
+    Examples
+    --------
+    >>> ps = find_pairs([[0, 0], [1, 0], [0, 1], [5, 5]], 1.0)
+    >>> ps.tail.tolist(), ps.head.tolist(), ps.azimuth.tolist()
+    ([0, 0], [1, 2], [90.0, 0.0])
+    """
+    xy = _as_xy(xy)
+    if not (isinstance(max_distance, (int, float, np.floating, np.integer)) and max_distance > 0
+            and math.isfinite(max_distance)):
+        raise ConfigError(f"max_distance must be a positive finite length, got {max_distance!r}.")
+    if not (isinstance(pair_budget, (int, np.integer)) and pair_budget >= 1):
+        raise ConfigError(f"pair_budget must be a whole number of at least 1, got {pair_budget!r}.")
+    max_distance = float(max_distance)
+    rows = np.flatnonzero(np.isfinite(xy).all(axis=1))
+    empty = PairSet(
+        np.empty(0, np.int64), np.empty(0, np.int64), np.empty(0), np.empty(0),
+        max_distance, 0, 1.0, 1.0, int(seed),
+    )
+    if rows.size < 2:
+        return empty
+    pts = xy[rows]
+    radius = max_distance * (1.0 + _RADIUS_SLACK)
+    tree = cKDTree(pts)
+    # count_neighbors counts ordered pairs including each point with itself.
+    in_reach = int((int(tree.count_neighbors(tree, radius)) - rows.size) // 2)
+    if in_reach == 0:
+        return PairSet(empty.tail, empty.head, empty.distance, empty.azimuth, max_distance, 0, 1.0, 1.0, int(seed))
+
+    rng = np.random.default_rng(seed)
+    point_fraction = 1.0
+    sub = np.arange(rows.size)
+    sub_in_reach = in_reach
+    if in_reach > _POINT_SAMPLING_FACTOR * pair_budget:
+        point_fraction = math.sqrt(_POINT_SAMPLING_FACTOR * pair_budget / in_reach)
+        sub = np.flatnonzero(rng.random(rows.size) < point_fraction)
+        if sub.size >= 2:
+            tree = cKDTree(pts[sub])
+            sub_in_reach = int((int(tree.count_neighbors(tree, radius)) - sub.size) // 2)
+        else:
+            sub_in_reach = 0
+    pair_fraction = 1.0 if sub_in_reach <= pair_budget else pair_budget / sub_in_reach
+    sub_pts = pts[sub]
+
+    tails, heads = [], []
+    if sub.size >= 2 and sub_in_reach > 0:
+        order = np.argsort(sub_pts[:, 0], kind="stable")
+        chunk = max(1, int(_CHUNK_PAIRS * sub.size / max(2 * sub_in_reach, 1)))
+        for start in range(0, sub.size, chunk):
+            idx = order[start:start + chunk]
+            records = cKDTree(sub_pts[idx]).sparse_distance_matrix(tree, radius, output_type="ndarray")
+            a = idx[records["i"]]
+            b = records["j"].astype(np.int64)
+            keep = a < b
+            a, b = a[keep], b[keep]
+            d = np.hypot(sub_pts[b, 0] - sub_pts[a, 0], sub_pts[b, 1] - sub_pts[a, 1])
+            keep = d <= max_distance
+            a, b = a[keep], b[keep]
+            if pair_fraction < 1.0:
+                keep = rng.random(a.size) < pair_fraction
+                a, b = a[keep], b[keep]
+            tails.append(a)
+            heads.append(b)
+    a = np.concatenate(tails) if tails else np.empty(0, np.int64)
+    b = np.concatenate(heads) if heads else np.empty(0, np.int64)
+    if a.size > pair_budget:
+        pick = np.sort(rng.choice(a.size, size=pair_budget, replace=False))
+        a, b = a[pick], b[pick]
+    a = rows[sub[a]]
+    b = rows[sub[b]]
+
+    dx = xy[b, 0] - xy[a, 0]
+    dy = xy[b, 1] - xy[a, 1]
+    swap = (dx < 0) | ((dx == 0) & (dy < 0))
+    tail = np.where(swap, b, a).astype(np.int64)
+    head = np.where(swap, a, b).astype(np.int64)
+    dx = np.abs(dx)
+    dy = np.where(swap, -dy, dy)
+    distance = np.hypot(dx, dy)
+    with np.errstate(invalid="ignore"):
+        azimuth = np.mod(np.degrees(np.arctan2(dx, dy)), 180.0)
+    azimuth[distance == 0] = np.nan
+    order = np.lexsort((head, tail))
+    return PairSet(
+        tail[order], head[order], distance[order], azimuth[order],
+        max_distance, in_reach, point_fraction, pair_fraction, int(seed),
+    )
+
+
+def axial_difference(azimuth, direction: float) -> np.ndarray:
+    """Smallest angle in degrees between axial azimuths, in ``[0, 90]``.
+
+    Examples
+    --------
+    >>> axial_difference([170.0, 10.0, 100.0], 0.0).tolist()
+    [10.0, 10.0, 80.0]
+    """
+    azimuth = np.asarray(azimuth, dtype=float)
+    return np.abs(np.mod(azimuth - float(direction) + 90.0, 180.0) - 90.0)
+
+
+def direction_label(direction: float | None) -> str:
+    """Text label of a direction: ``'all'`` for None, else the azimuth, e.g. ``'90'`` or ``'22.5'``."""
+    if direction is None:
+        return "all"
+    return f"{float(direction):g}"
+
+
+def point_spacing(xy) -> float:
+    """Typical spacing of the points: the median distance to the nearest distinct point.
+
+    Coincident points (distance 0) are skipped so duplicates do not shrink
+    the spacing. Returns NaN when fewer than two distinct points exist.
+    """
+    xy = _as_xy(xy)
+    pts = xy[np.isfinite(xy).all(axis=1)]
+    if pts.shape[0] < 2:
+        return float("nan")
+    k = min(pts.shape[0], 9)
+    dist, _ = cKDTree(pts).query(pts, k=k)
+    dist = np.where(dist > 0, dist, np.inf)
+    nearest = dist.min(axis=1)
+    nearest = nearest[np.isfinite(nearest)]
+    if nearest.size == 0:
+        # More than eight coincident records everywhere: fall back to unique points.
+        uniq = np.unique(pts, axis=0)
+        if uniq.shape[0] < 2:
+            return float("nan")
+        d, _ = cKDTree(uniq).query(uniq, k=2)
+        return float(np.median(d[:, 1]))
+    return float(np.median(nearest))
+
+
+def lag_class_edges(first_lag: float, lag_count: int, lag_tolerance: float | None = None) -> np.ndarray:
+    """Lower and upper edges of the screening lag classes.
+
+    Class ``k`` (1-based) has centre ``k * first_lag`` and holds separations
+    in ``(k * h - t, k * h + t]``; the first class reaches down to 0 (exclusive)
+    so the closest pairs, which matter most for screening, are kept.
+
+    Parameters
+    ----------
+    first_lag : float
+        Lag spacing ``h`` (the centre of the first class).
+    lag_count : int
+        Number of classes.
+    lag_tolerance : float, optional
+        Half-width ``t``; default ``h / 2`` (classes touch). It may not
+        exceed ``h / 2``, which would put one pair in two classes.
+
+    Returns
+    -------
+    ndarray, shape (lag_count, 2)
+        ``[low, high]`` per class.
+
+    Examples
+    --------
+    >>> lag_class_edges(10.0, 3).tolist()
+    [[0.0, 15.0], [15.0, 25.0], [25.0, 35.0]]
+    """
+    if not (first_lag > 0 and math.isfinite(first_lag)):
+        raise ConfigError(f"first_lag must be a positive length, got {first_lag!r}.")
+    if not (isinstance(lag_count, (int, np.integer)) and 1 <= lag_count <= 1000):
+        raise ConfigError(f"lag_count must be a whole number from 1 to 1000, got {lag_count!r}.")
+    t = first_lag / 2.0 if lag_tolerance is None else float(lag_tolerance)
+    if not 0 < t <= first_lag / 2.0 * (1 + 1e-12):
+        raise ConfigError(
+            f"lag_tolerance {lag_tolerance!r} must be positive and at most half the lag ({first_lag / 2:g}); "
+            "a wider tolerance would put one pair in two lag classes."
+        )
+    centres = first_lag * np.arange(1, lag_count + 1)
+    edges = np.column_stack([centres - t, centres + t])
+    edges[0, 0] = 0.0
+    # Touching classes share one edge value exactly, so no separation falls
+    # in a rounding gap between them.
+    touching = np.isclose(edges[1:, 0], edges[:-1, 1], rtol=1e-12, atol=0.0)
+    edges[1:, 0] = np.where(touching, edges[:-1, 1], edges[1:, 0])
+    return edges
+
+
+@dataclass(frozen=True)
+class LagPairScreen:
+    """Result of :func:`screen_lag_pairs`.
+
+    Attributes
+    ----------
+    points : pandas.DataFrame
+        One row per input point: ``lagpair_pairs`` (screened pairs the point
+        is in), ``lagpair_flagged`` (of those, outside the band),
+        ``lagpair_flagged_share``, ``lagpair_attributed`` (flagged pairs in
+        which this point, not the other end, is the likely culprit),
+        ``lagpair_max_z`` (largest absolute departure of its pairs, in band
+        scales) and ``lagpair_culprit`` (bool: the point is the likely culprit).
+    classes : pandas.DataFrame
+        One row per direction and lag class: ``direction``, ``lag``,
+        ``lag_low``, ``lag_high``, ``pairs``, ``band_centre``, ``band_scale``,
+        ``flagged``, ``screened``.
+    pairs : PairSet
+        The pairs searched.
+    lag_index : ndarray of int
+        Lag class (0-based) of each pair, -1 if in none.
+    direction_member : ndarray of bool, shape (pairs, directions)
+        Whether each pair falls in each direction class.
+    pair_z : ndarray of float, shape (pairs, directions)
+        Signed departure ``(difference - band_centre) / band_scale`` in each
+        direction class; NaN where the pair is not in a screened class.
+    flagged : ndarray of bool
+        Pair is outside the band in at least one of its classes.
+    culprit : ndarray of int
+        Row of the likely culprit of each flagged pair, -1 when neither end
+        stands out (or the pair is not flagged).
+    values : ndarray of float
+        The values screened (NaN where unusable).
+    ids : ndarray of str
+        Point labels used in the pair table.
+    directions, angle_tolerance, first_lag, lag_edges, threshold :
+        Settings used.
+    """
+
+    points: pd.DataFrame
+    classes: pd.DataFrame
+    pairs: PairSet
+    lag_index: np.ndarray
+    direction_member: np.ndarray
+    pair_z: np.ndarray
+    flagged: np.ndarray
+    culprit: np.ndarray
+    values: np.ndarray
+    ids: np.ndarray
+    directions: tuple[float, ...]
+    angle_tolerance: float
+    first_lag: float
+    lag_edges: np.ndarray
+    threshold: float
+    settings: dict = field(default_factory=dict)
+
+    def pair_table(self, flagged_only: bool = True) -> pd.DataFrame:
+        """Table of pairs, for the ``lag_pairs`` layer.
+
+        Columns: ``tail_row``, ``head_row``, ``tail_id``, ``head_id``,
+        ``tail_value``, ``head_value``, ``difference`` (head - tail),
+        ``separation``, ``azimuth`` (of the pair), ``direction`` (label of the
+        direction class where it is farthest out), ``lag`` (1-based class),
+        ``pair_z`` (signed departure in band scales, "how far out"),
+        ``flagged`` and ``culprit_id`` ("" when neither end stands out).
+        """
+        abs_z = np.abs(self.pair_z)
+        has = np.isfinite(abs_z).any(axis=1) if abs_z.size else np.zeros(self.pairs.size, bool)
+        keep = self.flagged if flagged_only else has
+        sel = np.flatnonzero(keep)
+        if sel.size:
+            best = np.nanargmax(np.where(np.isfinite(abs_z[sel]), abs_z[sel], -1.0), axis=1)
+            z = self.pair_z[sel, best]
+            dirs = np.array([direction_label(d) for d in self.directions], dtype=object)[best]
+        else:
+            z = np.empty(0)
+            dirs = np.empty(0, dtype=object)
+        tail = self.pairs.tail[sel]
+        head = self.pairs.head[sel]
+        culprit = self.culprit[sel]
+        culprit_id = np.where(culprit >= 0, self.ids[np.where(culprit >= 0, culprit, 0)], "")
+        return pd.DataFrame({
+            "tail_row": tail,
+            "head_row": head,
+            "tail_id": self.ids[tail].astype(object),
+            "head_id": self.ids[head].astype(object),
+            "tail_value": self.values[tail],
+            "head_value": self.values[head],
+            "difference": self.values[head] - self.values[tail],
+            "separation": self.pairs.distance[sel],
+            "azimuth": self.pairs.azimuth[sel],
+            "direction": pd.Series(dirs, dtype=object),
+            "lag": self.lag_index[sel] + 1,
+            "pair_z": z,
+            "flagged": self.flagged[sel],
+            "culprit_id": culprit_id.astype(object),
+        })
+
+    @property
+    def record(self) -> dict:
+        """Plain-value summary for the run record."""
+        return {
+            "directions": [direction_label(d) for d in self.directions],
+            "angle_tolerance": float(self.angle_tolerance),
+            "first_lag": float(self.first_lag),
+            "lag_edges": self.lag_edges.tolist(),
+            "threshold": float(self.threshold),
+            "pairs_screened": int(np.isfinite(self.pair_z).any(axis=1).sum()) if self.pair_z.size else 0,
+            "pairs_flagged": int(self.flagged.sum()),
+            "culprits": int(self.points["lagpair_culprit"].sum()),
+            "pair_search": self.pairs.record,
+            **self.settings,
+        }
+
+
+def _robust_centre_scale(diff: np.ndarray) -> tuple[float, float]:
+    centre = float(np.median(diff))
+    scale = float(np.median(np.abs(diff - centre))) / _NORMAL_Q75
+    if not scale > 0:
+        q75, q25 = np.percentile(diff, [75, 25])
+        scale = float(q75 - q25) / (2.0 * _NORMAL_Q75)
+    return centre, scale
+
+
+def screen_lag_pairs(
+    xy,
+    values,
+    *,
+    ids=None,
+    first_lag: float | None = None,
+    lag_count: int = 3,
+    lag_tolerance: float | None = None,
+    directions=DEFAULT_DIRECTIONS,
+    angle_tolerance: float = 22.5,
+    threshold: float = 3.5,
+    min_class_pairs: int = 10,
+    min_flagged: int = 2,
+    culprit_share: float = 0.25,
+    pair_budget: int = DEFAULT_PAIR_BUDGET,
+    seed: int = 0,
+) -> LagPairScreen:
+    """Screen pairs of points by lag and direction, and attribute outlying pairs to points.
+
+    For each direction and lag class the differences ``head - tail`` of the
+    pairs in it define a robust band around the 1:1 line of the pair cloud
+    (centre: median difference; scale: MAD / 0.6745, or IQR / 1.349 when the
+    MAD is 0). A pair is flagged when ``|difference - centre| > threshold *
+    scale`` in any of its classes. Each point gets the count and share of its
+    pairs that are flagged. A flagged pair is attributed to the end whose
+    share of flagged pairs is higher (on equal shares, the end with more
+    flagged pairs; to neither on a full tie); a point is the
+    likely culprit when it has at least ``min_flagged`` flagged pairs, at
+    least ``culprit_share`` of its pairs are flagged, and it is the attributed
+    end of more than half of its flagged pairs. The other end of such a pair
+    gets no evidence.
+
+    Parameters
+    ----------
+    xy : array_like, shape (n, 2)
+        Coordinates in a metric work CRS.
+    values : array_like, shape (n,)
+        Measured values; NaN rows take part in no pair.
+    ids : array_like of str, optional
+        Labels of the points for the pair table (default: row numbers).
+    first_lag : float, optional
+        Lag spacing ``h``; default the median nearest-neighbour spacing
+        (:func:`point_spacing`).
+    lag_count : int
+        Number of lag classes screened (default 3: h, 2h, 3h).
+    lag_tolerance : float, optional
+        Half-width of a lag class, at most ``h / 2`` (the default).
+    directions : sequence of float
+        Azimuths in degrees (default W-E 90, SW-NE 45, S-N 0, SE-NW 135).
+    angle_tolerance : float
+        Half-width of a direction class in degrees, ``(0, 90]``; the default
+        22.5 makes the four default directions cover every azimuth.
+    threshold : float
+        Band half-width in robust scales.
+    min_class_pairs : int
+        Classes with fewer pairs are not screened (their scale would be noise).
+    min_flagged : int
+        Flagged pairs a point needs before it can be called the culprit.
+    culprit_share : float
+        Share of a point's pairs that must be flagged for it to be the culprit.
+    pair_budget : int
+        Passed to :func:`find_pairs`.
+    seed : int
+        Seed of any pair subsampling.
+
+    Returns
+    -------
+    LagPairScreen
+    """
+    xy = _as_xy(xy)
+    values = np.asarray(values, dtype=float)
+    n = xy.shape[0]
+    if values.shape != (n,):
+        raise InputError(f"values must have one entry per point ({n}), got shape {values.shape}.")
+    if ids is None:
+        ids = np.arange(n).astype(str)
+    ids = np.asarray(ids).astype(str)
+    if ids.shape != (n,):
+        raise InputError(f"ids must have one entry per point ({n}), got shape {ids.shape}.")
+    directions = tuple(float(d) % 180.0 for d in directions)
+    if not directions:
+        raise ConfigError("directions is empty; give at least one azimuth, e.g. (90, 45, 0, 135).")
+    if not 0 < angle_tolerance <= 90:
+        raise ConfigError(f"angle_tolerance must be in (0, 90] degrees, got {angle_tolerance!r}.")
+    if not threshold > 0:
+        raise ConfigError(f"threshold must be positive, got {threshold!r}.")
+    if not 0 < culprit_share <= 1:
+        raise ConfigError(f"culprit_share must be in (0, 1], got {culprit_share!r}.")
+
+    usable = np.isfinite(values) & np.isfinite(xy).all(axis=1)
+    xy_use = np.where(usable[:, None], xy, np.nan)
+    if first_lag is None:
+        first_lag = point_spacing(xy_use)
+        if not math.isfinite(first_lag):
+            first_lag = 1.0  # fewer than two distinct usable points: nothing to pair
+    edges = lag_class_edges(float(first_lag), lag_count, lag_tolerance)
+    pairs = find_pairs(xy_use, float(edges[-1, 1]), pair_budget=pair_budget, seed=seed)
+
+    d = pairs.distance
+    lag_index = np.full(pairs.size, -1, dtype=np.int64)
+    for k, (lo, hi) in enumerate(edges):
+        lag_index[(d > lo) & (d <= hi)] = k
+    diff = values[pairs.head] - values[pairs.tail]
+    member = np.zeros((pairs.size, len(directions)), dtype=bool)
+    pair_z = np.full((pairs.size, len(directions)), np.nan)
+    rows = []
+    for j, direction in enumerate(directions):
+        with np.errstate(invalid="ignore"):
+            member[:, j] = (axial_difference(pairs.azimuth, direction) <= angle_tolerance) & (lag_index >= 0)
+        for k, (lo, hi) in enumerate(edges):
+            sel = np.flatnonzero(member[:, j] & (lag_index == k))
+            centre = scale = float("nan")
+            screened = False
+            flagged_count = 0
+            if sel.size >= min_class_pairs:
+                centre, scale = _robust_centre_scale(diff[sel])
+                if scale > 0:
+                    screened = True
+                    z = (diff[sel] - centre) / scale
+                    pair_z[sel, j] = z
+                    flagged_count = int((np.abs(z) > threshold).sum())
+            rows.append({
+                "direction": direction_label(direction), "lag": k + 1, "lag_low": float(lo),
+                "lag_high": float(hi), "pairs": int(sel.size), "band_centre": centre,
+                "band_scale": scale, "flagged": flagged_count, "screened": screened,
+            })
+    screened_pair = np.isfinite(pair_z).any(axis=1)
+    with np.errstate(invalid="ignore"):
+        flagged = (np.abs(pair_z) > threshold).any(axis=1)
+        max_abs_z = np.max(np.where(np.isfinite(pair_z), np.abs(pair_z), -np.inf), axis=1, initial=-np.inf)
+    max_abs_z = np.where(screened_pair, max_abs_z, np.nan)
+
+    tail_s, head_s = pairs.tail[screened_pair], pairs.head[screened_pair]
+    n_pairs = np.bincount(tail_s, minlength=n) + np.bincount(head_s, minlength=n)
+    tail_f, head_f = pairs.tail[flagged], pairs.head[flagged]
+    n_flagged = np.bincount(tail_f, minlength=n) + np.bincount(head_f, minlength=n)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = np.where(n_pairs > 0, n_flagged / np.maximum(n_pairs, 1), np.nan)
+    share0 = np.nan_to_num(share, nan=0.0)
+    # Higher share wins; on equal shares, more flagged pairs wins (a point
+    # whose single pair is the flagged one does not outweigh its partner).
+    st, sh = share0[tail_f], share0[head_f]
+    ft, fh = n_flagged[tail_f], n_flagged[head_f]
+    tail_wins = (st > sh) | ((st == sh) & (ft > fh))
+    head_wins = (sh > st) | ((sh == st) & (fh > ft))
+    winner = np.where(tail_wins, tail_f, np.where(head_wins, head_f, -1))
+    attributed = np.bincount(winner[winner >= 0], minlength=n)
+    is_culprit = (n_flagged >= min_flagged) & (share0 >= culprit_share) & (2 * attributed > n_flagged)
+    culprit = np.full(pairs.size, -1, dtype=np.int64)
+    culprit[np.flatnonzero(flagged)] = np.where((winner >= 0) & is_culprit[np.maximum(winner, 0)], winner, -1)
+
+    point_max_z = np.full(n, -np.inf)
+    sz = max_abs_z[screened_pair]
+    np.maximum.at(point_max_z, tail_s, sz)
+    np.maximum.at(point_max_z, head_s, sz)
+    point_max_z[~np.isfinite(point_max_z)] = np.nan
+
+    points = pd.DataFrame({
+        "lagpair_pairs": n_pairs.astype(np.int64),
+        "lagpair_flagged": n_flagged.astype(np.int64),
+        "lagpair_flagged_share": share,
+        "lagpair_attributed": attributed.astype(np.int64),
+        "lagpair_max_z": point_max_z,
+        "lagpair_culprit": is_culprit,
+    })
+    return LagPairScreen(
+        points=points,
+        classes=pd.DataFrame(rows),
+        pairs=pairs,
+        lag_index=lag_index,
+        direction_member=member,
+        pair_z=pair_z,
+        flagged=flagged,
+        culprit=culprit,
+        values=values,
+        ids=ids,
+        directions=directions,
+        angle_tolerance=float(angle_tolerance),
+        first_lag=float(first_lag),
+        lag_edges=edges,
+        threshold=float(threshold),
+        settings={
+            "min_class_pairs": int(min_class_pairs),
+            "min_flagged": int(min_flagged),
+            "culprit_share": float(culprit_share),
+        },
+    )
+
+
+def lag_pairs_layer(screen: LagPairScreen, xy, crs=None, flagged_only: bool = True):
+    """The ``lag_pairs`` line layer: one segment tail -> head per pair.
+
+    Parameters
+    ----------
+    screen : LagPairScreen
+    xy : array_like, shape (n, 2)
+        The work-CRS coordinates the screen was run on.
+    crs : optional
+        CRS of ``xy`` (the work CRS), passed to GeoPandas.
+    flagged_only : bool
+        Only flagged pairs (default), or every screened pair.
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        :meth:`LagPairScreen.pair_table` columns plus LineString geometry.
+    """
+    import geopandas as gpd
+    import shapely
+
+    xy = _as_xy(xy)
+    table = screen.pair_table(flagged_only=flagged_only)
+    coords = np.stack([xy[table["tail_row"].to_numpy()], xy[table["head_row"].to_numpy()]], axis=1)
+    geometry = shapely.linestrings(coords) if len(table) else np.empty(0, dtype=object)
+    return gpd.GeoDataFrame(table, geometry=gpd.GeoSeries(geometry, crs=crs), crs=crs)
+
+
+def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int = 20_000, seed: int = 0):
+    """Pair clouds (tail value vs head value) of one direction, a panel per lag class.
+
+    The 1:1 line, the robust band and the flagged pairs (red) are drawn;
+    flagged pairs are always shown, other pairs are subsampled to
+    ``max_points`` per panel (seeded), which the title states.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    direction = float(direction) % 180.0
+    if direction not in screen.directions:
+        raise ConfigError(
+            f"direction {direction:g} was not screened; choose one of "
+            f"{', '.join(direction_label(d) for d in screen.directions)}."
+        )
+    j = screen.directions.index(direction)
+    n_lags = screen.lag_edges.shape[0]
+    fig = Figure(figsize=(3.6 * n_lags, 3.8), layout="constrained")
+    axes = fig.subplots(1, n_lags, squeeze=False)[0]
+    rng = np.random.default_rng(seed)
+    tail_v = screen.values[screen.pairs.tail]
+    head_v = screen.values[screen.pairs.head]
+    classes = screen.classes.set_index(["direction", "lag"])
+    name = DIRECTION_NAMES.get(direction, f"azimuth {direction:g}")
+    for k, ax in enumerate(axes):
+        sel = np.flatnonzero(screen.direction_member[:, j] & (screen.lag_index == k))
+        with np.errstate(invalid="ignore"):
+            out = np.abs(screen.pair_z[sel, j]) > screen.threshold
+        inside = sel[~out]
+        note = ""
+        if inside.size > max_points:
+            inside = np.sort(rng.choice(inside, size=max_points, replace=False))
+            note = f" ({max_points} of {int((~out).sum())} shown)"
+        ax.scatter(tail_v[inside], head_v[inside], s=6, c="0.45", alpha=0.6, linewidths=0)
+        ax.scatter(tail_v[sel[out]], head_v[sel[out]], s=18, c="tab:red", linewidths=0, label="flagged")
+        finite = np.concatenate([tail_v[sel], head_v[sel]])
+        finite = finite[np.isfinite(finite)]
+        if finite.size:
+            lo, hi = float(finite.min()), float(finite.max())
+            line = np.array([lo, hi])
+            ax.plot(line, line, color="k", lw=0.8)
+            row = classes.loc[(direction_label(direction), k + 1)]
+            if row["screened"]:
+                for sign in (-1, 1):
+                    offset = row["band_centre"] + sign * screen.threshold * row["band_scale"]
+                    ax.plot(line, line + offset, color="tab:blue", lw=0.8, ls="--")
+        lo_edge, hi_edge = screen.lag_edges[k]
+        ax.set_title(f"lag {k + 1}: ({lo_edge:.4g}, {hi_edge:.4g}]\n{sel.size} pairs, {int(out.sum())} flagged{note}",
+                     fontsize=8)
+        ax.set_xlabel("value at tail")
+        if k == 0:
+            ax.set_ylabel("value at head")
+    fig.suptitle(f"Lag pairs, {name} (tail to head azimuth {direction:g} +/- {screen.angle_tolerance:g} deg)",
+                 fontsize=10)
+    return fig

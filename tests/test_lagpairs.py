@@ -1,0 +1,314 @@
+"""Tests of pointsift.methods.lagpairs: pair search, lag/direction classes, robust pair screen."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import scipy.stats
+import shapely
+
+from pointsift.errors import ConfigError, InputError
+from pointsift.methods.lagpairs import (
+    DEFAULT_DIRECTIONS,
+    axial_difference,
+    find_pairs,
+    lag_class_edges,
+    lag_pairs_layer,
+    plot_lag_pairs,
+    point_spacing,
+    screen_lag_pairs,
+)
+
+
+# --------------------------------------------------------------------------- brute force references
+
+def brute_pairs(xy, max_distance):
+    """Every pair within max_distance by a double loop over all n^2 pairs, oriented by the stated rule.
+
+    Reference written independently of the module: plain Python loops and
+    ``math`` functions. Orientation rule (module docstring): head east of the
+    tail, or due north when x is equal; coincident: lower row is the tail.
+    """
+    out = {}
+    n = len(xy)
+    for i in range(n):
+        for j in range(i + 1, n):
+            xi, yi = xy[i]
+            xj, yj = xy[j]
+            if not all(math.isfinite(v) for v in (xi, yi, xj, yj)):
+                continue
+            d = math.hypot(xj - xi, yj - yi)
+            if d > max_distance:
+                continue
+            if xj > xi or (xj == xi and yj > yi):
+                tail, head = i, j
+            elif xj == xi and yj == yi:
+                tail, head = i, j
+            else:
+                tail, head = j, i
+            dx = xy[head][0] - xy[tail][0]
+            dy = xy[head][1] - xy[tail][1]
+            az = float("nan") if d == 0 else math.degrees(math.atan2(dx, dy)) % 180.0
+            out[(tail, head)] = (d, az)
+    return out
+
+
+def brute_classes(xy, values, first_lag, lag_count, lag_tol, directions, angle_tol):
+    """(direction index, lag index) -> set of (tail, head) by brute force over all pairs."""
+    t = first_lag / 2 if lag_tol is None else lag_tol
+    reach = lag_count * first_lag + t
+    result = {}
+    for (tail, head), (d, az) in brute_pairs(xy, reach).items():
+        if not (math.isfinite(values[tail]) and math.isfinite(values[head])) or d == 0:
+            continue
+        for k in range(1, lag_count + 1):
+            low = 0.0 if k == 1 else k * first_lag - t
+            high = k * first_lag + t
+            if low < d <= high:
+                for j, direction in enumerate(directions):
+                    diff = abs(az - direction) % 180.0
+                    diff = min(diff, 180.0 - diff)
+                    if diff <= angle_tol:
+                        result.setdefault((j, k - 1), set()).add((tail, head))
+    return result
+
+
+def lattice_with_duplicates():
+    """Points on a 5 m lattice (distances hit 15, 25, 35 exactly, azimuths hit 45 exactly),
+    with coincident duplicates and a row without coordinates."""
+    rng = np.random.default_rng(7)
+    grid = np.array([(x, y) for x in range(0, 50, 5) for y in range(0, 40, 5)], dtype=float)
+    keep = rng.random(len(grid)) < 0.7
+    pts = grid[keep]
+    pts = np.vstack([pts, pts[:4], [[np.nan, 3.0]]])  # four exact duplicates, one unusable row
+    return pts[rng.permutation(len(pts))]
+
+
+# --------------------------------------------------------------------------- pair search
+
+@pytest.mark.parametrize("max_distance", [5.0, 7.0710678118654755, 15.0, 25.0, 35.0, 12.3])
+def test_find_pairs_equals_brute_force(max_distance):
+    xy = lattice_with_duplicates()
+    got = find_pairs(xy, max_distance)
+    ref = brute_pairs(xy.tolist(), max_distance)  # reference: all n^2 pairs, double loop
+    assert got.pairs_in_reach == len(ref)
+    assert not got.sampled
+    assert set(zip(got.tail.tolist(), got.head.tolist())) == set(ref)
+    for t, h, d, az in zip(got.tail, got.head, got.distance, got.azimuth):
+        rd, raz = ref[(t, h)]
+        assert d == pytest.approx(rd, abs=1e-12)
+        if math.isnan(raz):
+            assert math.isnan(az)
+        else:
+            assert az == pytest.approx(raz, abs=1e-9)
+    # the lattice does put pairs exactly on the radius, and duplicates are found
+    assert any(abs(d - max_distance) < 1e-9 for d, _ in ref.values()) or max_distance == 12.3
+    assert any(d == 0 for d, _ in ref.values())
+
+
+def test_find_pairs_random_points_equal_brute_force():
+    rng = np.random.default_rng(3)
+    xy = rng.uniform(0, 100, (150, 2))
+    got = find_pairs(xy, 18.0)
+    ref = brute_pairs(xy.tolist(), 18.0)  # reference: double loop over all pairs
+    assert set(zip(got.tail.tolist(), got.head.tolist())) == set(ref)
+
+
+def test_azimuth_convention_of_the_four_default_directions():
+    # Azimuth clockwise from north, axial (common practice); tail W of head -> 90,
+    # S of head -> 0, SW -> 45, NW (head SE) -> 135.
+    xy = np.array([[0.0, 0.0], [10.0, 0.0], [0.0, 10.0], [10.0, 10.0]])
+    got = find_pairs(xy, 15.0)
+    az = {(int(t), int(h)): float(a) for t, h, a in zip(got.tail, got.head, got.azimuth)}
+    assert az[(0, 1)] == 90.0
+    assert az[(0, 2)] == 0.0
+    assert az[(0, 3)] == pytest.approx(45.0)
+    assert az[(2, 1)] == pytest.approx(135.0)  # from (0, 10) (tail, NW) to (10, 0) (head, SE)
+    assert set(DEFAULT_DIRECTIONS) == {0.0, 45.0, 90.0, 135.0}
+
+
+def test_axial_difference_wraps_around_180():
+    # Axial directions: 170 and 10 degrees are 20 degrees apart (common practice).
+    assert axial_difference([170.0], 10.0)[0] == pytest.approx(20.0)
+    assert axial_difference([179.0, 1.0, 91.0], 0.0).tolist() == pytest.approx([1.0, 1.0, 89.0])
+
+
+def test_pair_budget_subsamples_pairs_with_a_seed_and_reports_it():
+    rng = np.random.default_rng(11)
+    xy = rng.uniform(0, 100, (400, 2))
+    full = find_pairs(xy, 15.0)
+    part = find_pairs(xy, 15.0, pair_budget=1000, seed=5)
+    again = find_pairs(xy, 15.0, pair_budget=1000, seed=5)
+    other = find_pairs(xy, 15.0, pair_budget=1000, seed=6)
+    assert full.size > 1000
+    assert part.size <= 1000 and part.size > 800
+    assert part.sampled and part.record["sampled"] and part.record["pairs_in_reach"] == full.size
+    assert part.record["pair_fraction"] < 1.0
+    np.testing.assert_array_equal(part.tail, again.tail)
+    np.testing.assert_array_equal(part.head, again.head)
+    assert not np.array_equal(part.tail, other.tail) or not np.array_equal(part.head, other.head)
+    full_set = set(zip(full.tail.tolist(), full.head.tolist()))
+    assert set(zip(part.tail.tolist(), part.head.tolist())) <= full_set
+
+
+def test_pair_budget_far_exceeded_samples_points_first():
+    rng = np.random.default_rng(12)
+    xy = rng.uniform(0, 100, (1500, 2))
+    part = find_pairs(xy, 60.0, pair_budget=500, seed=1)
+    assert part.size <= 500
+    assert part.record["point_fraction"] < 1.0
+    assert part.record["pairs_in_reach"] == len(brute_pairs_count(xy, 60.0))
+
+
+def brute_pairs_count(xy, r):
+    """All i < j pairs within r from the full distance matrix (numpy reference)."""
+    d = np.hypot(xy[:, None, 0] - xy[None, :, 0], xy[:, None, 1] - xy[None, :, 1])
+    i, j = np.nonzero(np.triu(d <= r, k=1))
+    return list(zip(i, j))
+
+
+def test_find_pairs_rejects_bad_radius_and_shape():
+    with pytest.raises(ConfigError, match="max_distance must be a positive"):
+        find_pairs(np.zeros((3, 2)), -1.0)
+    with pytest.raises(InputError, match=r"\(n, 2\) array"):
+        find_pairs(np.zeros((3, 3)), 1.0)
+    with pytest.raises(ConfigError, match="pair_budget"):
+        find_pairs(np.zeros((3, 2)), 1.0, pair_budget=0)
+
+
+# --------------------------------------------------------------------------- classes
+
+def test_point_spacing_is_median_distance_to_nearest_distinct_point():
+    xy = lattice_with_duplicates()
+    pts = xy[np.isfinite(xy).all(axis=1)]
+    d = np.hypot(pts[:, None, 0] - pts[None, :, 0], pts[:, None, 1] - pts[None, :, 1])
+    d[d == 0] = np.inf  # self and duplicates
+    assert point_spacing(xy) == pytest.approx(float(np.median(d.min(axis=1))))  # numpy full-matrix reference
+
+
+def test_lag_class_edges_touch_and_reject_overlap():
+    e = lag_class_edges(10.0, 3, 4.0)
+    np.testing.assert_allclose(e, [[0.0, 14.0], [16.0, 24.0], [26.0, 34.0]])
+    e = lag_class_edges(0.1, 4)
+    assert np.all(e[1:, 0] == e[:-1, 1])  # exactly equal: no rounding gap between classes
+    with pytest.raises(ConfigError, match="at most half the lag"):
+        lag_class_edges(10.0, 3, 6.0)
+
+
+@pytest.mark.parametrize("angle_tol", [10.0, 22.5, 45.0, 90.0])
+@pytest.mark.parametrize("lag_tol", [None, 2.5])
+def test_screen_classes_equal_brute_force(angle_tol, lag_tol):
+    xy = lattice_with_duplicates()
+    rng = np.random.default_rng(1)
+    values = rng.normal(size=len(xy))
+    values[3] = np.nan
+    screen = screen_lag_pairs(xy, values, first_lag=10.0, lag_count=3, lag_tolerance=lag_tol,
+                              angle_tolerance=angle_tol, min_class_pairs=1)
+    ref = brute_classes(xy.tolist(), values.tolist(), 10.0, 3, lag_tol, screen.directions, angle_tol)
+    for j in range(len(screen.directions)):
+        for k in range(3):
+            sel = screen.direction_member[:, j] & (screen.lag_index == k)
+            got = set(zip(screen.pairs.tail[sel].tolist(), screen.pairs.head[sel].tolist()))
+            assert got == ref.get((j, k), set()), (screen.directions[j], k)
+            row = screen.classes[(screen.classes["direction"] == f"{screen.directions[j]:g}")
+                                 & (screen.classes["lag"] == k + 1)].iloc[0]
+            assert row["pairs"] == len(got)
+
+
+def test_band_scale_is_normal_consistent_mad_of_the_class_differences():
+    rng = np.random.default_rng(4)
+    xy = rng.uniform(0, 300, (600, 2))
+    values = xy[:, 0] * 0.01 + rng.normal(0, 1, 600)
+    screen = screen_lag_pairs(xy, values)
+    j = screen.directions.index(90.0)
+    sel = screen.direction_member[:, j] & (screen.lag_index == 1)
+    diff = values[screen.pairs.head[sel]] - values[screen.pairs.tail[sel]]
+    row = screen.classes[(screen.classes["direction"] == "90") & (screen.classes["lag"] == 2)].iloc[0]
+    # reference: scipy.stats.median_abs_deviation with scale="normal", and numpy's median
+    assert row["band_scale"] == pytest.approx(scipy.stats.median_abs_deviation(diff, scale="normal"), rel=1e-12)
+    assert row["band_centre"] == pytest.approx(np.median(diff), rel=1e-12)
+    z = (diff - row["band_centre"]) / row["band_scale"]
+    assert row["flagged"] == int((np.abs(z) > screen.threshold).sum())
+
+
+# --------------------------------------------------------------------------- attribution
+
+def smooth_field(xy):
+    """A smooth surface (slow sines and a tilt), no noise."""
+    return 50 + 0.02 * xy[:, 0] + 2 * np.sin(xy[:, 0] / 180) * np.cos(xy[:, 1] / 240)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_planted_error_is_the_attributed_point_and_its_neighbours_are_not(seed):
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 1000, (500, 2))
+    values = smooth_field(xy) + rng.normal(0, 0.01, 500)
+    centre = np.argmin(np.hypot(xy[:, 0] - 500, xy[:, 1] - 500))
+    values[centre] += 3.0  # a wrong value, far beyond the local differences
+    ids = np.array([f"W{i:04d}" for i in range(500)])
+    screen = screen_lag_pairs(xy, values, ids=ids)
+    pts = screen.points
+    assert np.flatnonzero(pts["lagpair_culprit"]).tolist() == [centre]
+    partners = set(screen.pairs.tail[screen.flagged]) | set(screen.pairs.head[screen.flagged])
+    partners.discard(centre)
+    assert len(partners) >= 3
+    for p in partners:
+        assert pts.loc[p, "lagpair_attributed"] == 0
+        assert not pts.loc[p, "lagpair_culprit"]
+    assert pts.loc[centre, "lagpair_flagged_share"] > 0.5
+    table = screen.pair_table()
+    touches = (table["tail_id"] == ids[centre]) | (table["head_id"] == ids[centre])
+    assert touches.sum() >= 3
+    assert (table.loc[touches, "culprit_id"] == ids[centre]).all()
+    # a chance pair just past the band elsewhere gets no culprit
+    assert (table.loc[~touches, "culprit_id"] == "").all()
+    assert (table["pair_z"].abs() > screen.threshold).all()
+    assert (table["difference"] == table["head_value"] - table["tail_value"]).all()
+
+
+def test_no_culprit_on_a_clean_smooth_field():
+    rng = np.random.default_rng(9)
+    xy = rng.uniform(0, 1000, (500, 2))
+    values = smooth_field(xy) + rng.normal(0, 0.01, 500)
+    screen = screen_lag_pairs(xy, values)
+    assert not screen.points["lagpair_culprit"].any()
+
+
+def test_lag_pairs_layer_segments_run_tail_to_head():
+    rng = np.random.default_rng(5)
+    xy = rng.uniform(0, 1000, (300, 2))
+    values = smooth_field(xy)
+    values[10] += 5.0
+    screen = screen_lag_pairs(xy, values)
+    layer = lag_pairs_layer(screen, xy, crs="EPSG:3857")
+    assert len(layer) == int(screen.flagged.sum()) > 0
+    assert layer.crs.to_epsg() == 3857
+    assert (layer.geom_type == "LineString").all()
+    # shapely's own length is the reference for the separation column
+    np.testing.assert_allclose(shapely.length(layer.geometry.values), layer["separation"], rtol=1e-12)
+    start = shapely.get_coordinates(layer.geometry.values)[::2]
+    np.testing.assert_array_equal(start, xy[layer["tail_row"]])
+
+
+def test_plot_lag_pairs_marks_the_flagged_pairs():
+    rng = np.random.default_rng(5)
+    xy = rng.uniform(0, 1000, (300, 2))
+    values = smooth_field(xy)
+    values[10] += 5.0
+    screen = screen_lag_pairs(xy, values)
+    fig = plot_lag_pairs(screen, 90)
+    assert len(fig.axes) == 3
+    red = sum(len(ax.collections[1].get_offsets()) for ax in fig.axes)
+    assert red == int(screen.classes.loc[screen.classes["direction"] == "90", "flagged"].sum())
+    with pytest.raises(ConfigError, match="was not screened"):
+        plot_lag_pairs(screen, 30)
+
+
+def test_screen_rejects_bad_options():
+    xy = np.zeros((4, 2))
+    with pytest.raises(ConfigError, match="angle_tolerance"):
+        screen_lag_pairs(xy, np.zeros(4), angle_tolerance=0)
+    with pytest.raises(InputError, match="one entry per point"):
+        screen_lag_pairs(xy, np.zeros(3))
