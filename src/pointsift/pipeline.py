@@ -1,0 +1,381 @@
+"""The screening pipeline: prepare -> neighbour graph -> methods -> verdict.
+
+Orchestration only: no printing, no click, no file paths. The command line,
+the batch runner and the Python API all call :func:`screen_frame`.
+"""
+
+from __future__ import annotations
+
+import logging
+import platform
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .config import ScreenConfig
+from .errors import InputError
+from .graph import NeighbourGraph, build_graph
+from .io import SourceInfo
+from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation, local_autocorrelation
+from .methods.coincident import coincident_conflicts
+from .methods.local import LocalResult, local_residuals
+from .prepare import Prepared, prepare
+from .verdict import STATUSES, decide, format_length
+
+__all__ = ["ScreenResult", "screen_frame", "screen", "ADDED_COLUMNS", "automatic_max_distance"]
+
+log = logging.getLogger(__name__)
+
+#: Columns the screen adds to the layer, in order.
+ADDED_COLUMNS = (
+    "screen_status",
+    "screen_score",
+    "screen_reasons",
+    "expected_value",
+    "local_residual",
+    "local_residual_z",
+    "residual_scale",
+    "neighbour_count",
+    "neighbour_distance_m",
+    "local_moran_i",
+    "local_moran_quadrant",
+    "local_moran_p",
+    "local_moran_p_adjusted",
+    "getis_ord_gi_star_z",
+    "coincident_role",
+)
+
+
+@dataclass
+class ScreenResult:
+    """Everything one screen produced.
+
+    Attributes
+    ----------
+    frame : geopandas.GeoDataFrame
+        The input rows, unchanged and in order, plus :data:`ADDED_COLUMNS`
+        (in the input CRS).
+    counts : dict
+        Rows per status.
+    run_info : dict
+        Parameters, versions, CRS used, counts and timings.
+    tables : dict
+        Extra layers and tables for the output GeoPackage, by name.
+    prepared : Prepared
+        The prepared layer (work-CRS coordinates, parsed values).
+    graph : NeighbourGraph
+        The neighbour graph used.
+    local : LocalResult
+        Robust local residuals.
+    autocorr : LocalAutocorrelation or None
+        Local Moran's I / Gi*.
+    artefacts : dict
+        Other method results (for reports and figures).
+    """
+
+    frame: gpd.GeoDataFrame
+    counts: dict
+    run_info: dict
+    tables: dict = field(default_factory=dict)
+    prepared: Prepared | None = None
+    graph: NeighbourGraph | None = None
+    local: LocalResult | None = None
+    autocorr: LocalAutocorrelation | None = None
+    artefacts: dict = field(default_factory=dict)
+
+
+def automatic_max_distance(xy: np.ndarray) -> float:
+    """Farthest a neighbour may be when the user gives no ``max_distance``.
+
+    The upper far fence (Tukey 1977: third quartile plus three interquartile
+    ranges) of the log distance from each point to its nearest other point:
+    a well whose nearest other well is farther than that is isolated.
+    """
+    from scipy.spatial import cKDTree
+
+    distinct = np.unique(xy, axis=0)
+    if distinct.shape[0] < 3:
+        return float("inf")
+    d, _ = cKDTree(distinct).query(distinct, k=2)
+    logs = np.log(d[:, 1][d[:, 1] > 0])
+    q1, q3 = np.percentile(logs, [25, 75])
+    return float(np.exp(q3 + 3.0 * max(q3 - q1, np.log(2.0))))
+
+
+def _library_versions() -> dict:
+    import esda
+    import libpysal
+    import pyogrio
+    import pyproj
+    import scipy
+    import shapely
+
+    return {
+        "pointsift": __version__,
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "pandas": pd.__version__,
+        "geopandas": gpd.__version__,
+        "shapely": shapely.__version__,
+        "pyproj": pyproj.__version__,
+        "pyogrio": pyogrio.__version__,
+        "libpysal": libpysal.__version__,
+        "esda": esda.__version__,
+        "gdal": pyogrio.__gdal_version_string__,
+    }
+
+
+def _detrend(prepared: Prepared, mode: str):
+    """Values with the regional trend taken out, for the cluster statistics."""
+    from .methods import trend
+
+    x, y, v = prepared.xy[:, 0], prepared.xy[:, 1], prepared.values
+    usable = prepared.usable
+    if mode == "none" or usable.sum() < 10:
+        return v, {"method": "none"}
+    try:
+        if mode == "polish":
+            fit = trend.median_polish_surface(x, y, v)
+            return fit.residual, {"method": "median polish"}
+        order = 1 if mode == "surface1" or (mode == "auto" and usable.sum() < 30) else 2
+        fit = trend.trend_surface(x, y, v, order=order, weight_function="bisquare")
+        return fit.residual, {
+            "method": f"robust trend surface, order {order} (bisquare IRLS)",
+            "variance_explained": round(float(fit.variance_explained), 4),
+        }
+    except InputError as exc:
+        return v, {"method": "none", "note": f"trend not removed: {exc}"}
+
+
+def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: SourceInfo | None = None) -> ScreenResult:
+    """Screen a point layer.
+
+    Parameters
+    ----------
+    frame : geopandas.GeoDataFrame
+        Input points (not modified).
+    config : ScreenConfig
+        Options.
+    source : SourceInfo, optional
+        Provenance, copied to the run record.
+
+    Returns
+    -------
+    ScreenResult
+
+    Raises
+    ------
+    InputError
+        Missing columns, non-point geometry, added column names already in
+        the input, or no usable point at all.
+    CRSError
+        Missing or contradictory CRS.
+    """
+    started = time.perf_counter()
+    timings: dict[str, float] = {}
+    clash = [c for c in ADDED_COLUMNS if c in frame.columns]
+    if clash:
+        raise InputError(
+            f"The input already has column(s) {', '.join(clash)} (is it a pointsift output?). "
+            "Rename or drop them, or screen the original layer."
+        )
+    where = f"layer {source.layer!r}" if source and source.layer else "the layer"
+    prepared = prepare(frame, config, where=where)
+    timings["prepare_s"] = time.perf_counter() - started
+    if not prepared.usable.any():
+        raise InputError(
+            f"No row of {where} has both a location and a value "
+            f"(first reason: {prepared.unscreened_reason[0]}). Check --value and the coordinates."
+        )
+
+    t = time.perf_counter()
+    usable_xy = prepared.xy[prepared.usable]
+    max_distance = config.max_distance if config.max_distance is not None else automatic_max_distance(usable_xy)
+    graph = build_graph(
+        prepared.xy,
+        kind=config.graph,
+        k=config.k,
+        within=config.within,
+        max_distance=max_distance,
+        coincident=prepared.coincident,
+        usable=prepared.usable,
+    )
+    timings["graph_s"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    local = local_residuals(prepared.xy, prepared.values, graph, min_neighbours=config.min_neighbours)
+    timings["local_residual_s"] = time.perf_counter() - t
+
+    counts_nb = graph.counts
+    too_few = prepared.usable & (counts_nb < config.min_neighbours)
+    reasons = prepared.unscreened_reason.copy()
+    limit = format_length(graph.max_distance)
+    for row in np.flatnonzero(too_few):
+        reasons[row] = (
+            f"no neighbour within {limit}"
+            if counts_nb[row] == 0
+            else f"only {counts_nb[row]} neighbour{'s' if counts_nb[row] > 1 else ''} within {limit} "
+            f"(at least {config.min_neighbours} needed); too isolated to judge"
+        )
+
+    t = time.perf_counter()
+    detrended, trend_info = _detrend(prepared, config.detrend)
+    judged = prepared.usable & ~too_few
+    autocorr = local_autocorrelation(
+        np.where(judged, detrended, np.nan), graph, permutations=config.permutations, seed=config.seed
+    )
+    timings["local_autocorrelation_s"] = time.perf_counter() - t
+
+    coincident = coincident_conflicts(
+        prepared.values,
+        prepared.coincident,
+        local.z,
+        local.scale,
+        value_tolerance=config.coincident_value_tolerance,
+        decisive_z=config.review_z,
+    )
+    with np.errstate(all="ignore"):
+        farthest = np.where(graph.mask, graph.distances, np.nan)
+        farthest = np.nanmax(np.where(np.isfinite(farthest), farthest, np.nan), axis=1, initial=np.nan) if farthest.shape[1] else np.full(prepared.n, np.nan)
+
+    t = time.perf_counter()
+    verdict = decide(
+        ids=prepared.ids,
+        values=prepared.values,
+        unscreened_reason=reasons,
+        local=local,
+        max_neighbour_distance=farthest,
+        autocorr=autocorr,
+        coincident=coincident,
+        config=config,
+    )
+    timings["verdict_s"] = time.perf_counter() - t
+
+    screened = verdict["screen_status"].to_numpy() != "unscreened"
+    out = frame.copy()
+    added = {
+        "screen_status": verdict["screen_status"].to_numpy(dtype=object),
+        "screen_score": verdict["screen_score"].to_numpy(dtype=float),
+        "screen_reasons": verdict["screen_reasons"].to_numpy(dtype=object),
+        "expected_value": np.where(screened, local.expected, np.nan),
+        "local_residual": np.where(screened, local.residual, np.nan),
+        "local_residual_z": np.where(screened, np.round(local.z, 4), np.nan),
+        "residual_scale": np.where(screened, local.scale, np.nan),
+        "neighbour_count": np.where(prepared.usable, counts_nb, 0).astype("int32"),
+        "neighbour_distance_m": np.where(screened, np.round(local.neighbour_distance, 2), np.nan),
+        "local_moran_i": np.where(screened, autocorr.moran_i, np.nan),
+        "local_moran_quadrant": np.array(
+            [QUADRANT_WORDS.get(int(q), "") if s else "" for q, s in zip(autocorr.quadrant, screened)], dtype=object
+        ),
+        "local_moran_p": np.where(screened, autocorr.p_value, np.nan),
+        "local_moran_p_adjusted": np.where(screened, autocorr.p_adjusted, np.nan),
+        "getis_ord_gi_star_z": np.where(screened, autocorr.gi_star_z, np.nan),
+        "coincident_role": coincident["role"].to_numpy(dtype=object),
+    }
+    for name in ADDED_COLUMNS:
+        out[name] = added[name]
+
+    counts = {status: int((added["screen_status"] == status).sum()) for status in STATUSES}
+    timings["total_s"] = time.perf_counter() - started
+    knots, knot_scale = local.distance_model
+    run_info = {
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "input_path": source.path if source else None,
+        "input_layer": source.layer if source else None,
+        "input_format": source.driver if source else None,
+        "input_sha256": source.sha256 if source else None,
+        "rows": int(prepared.n),
+        "value_column": config.value,
+        "id_column": config.id,
+        "input_crs": prepared.input_crs.to_string(),
+        "work_crs": prepared.work_crs.to_string(),
+        "work_crs_name": prepared.work_crs.name,
+        "graph": {
+            "kind": config.graph,
+            "k": config.k if config.graph == "knn" else None,
+            "within_m": config.within,
+            "max_distance_m": round(float(graph.max_distance), 3),
+            "max_distance_automatic": config.max_distance is None,
+            "min_neighbours": config.min_neighbours,
+        },
+        "distance_scale": {
+            "distance_m": [round(float(np.exp(k)), 3) for k in knots],
+            "robust_sd": [round(float(s), 6) for s in knot_scale],
+        },
+        "trend": trend_info,
+        "local_autocorrelation": {
+            "kernel": autocorr.kernel,
+            "permutations": config.permutations,
+            "points_with_more_permutations": int((autocorr.permutations > config.permutations).sum()),
+            "p_adjustment": "Benjamini-Hochberg",
+            "fdr": config.fdr,
+        },
+        "parameters": config.as_record(),
+        "counts": counts,
+        "notes": list(prepared.notes),
+        "timings_s": {k: round(v, 4) for k, v in timings.items()},
+        "versions": _library_versions(),
+        "caution": CAUTION,
+    }
+    return ScreenResult(
+        frame=out,
+        counts=counts,
+        run_info=run_info,
+        tables={},
+        prepared=prepared,
+        graph=graph,
+        local=local,
+        autocorr=autocorr,
+        artefacts={"coincident": coincident, "detrended": detrended},
+    )
+
+
+#: The caution carried by every output.
+CAUTION = (
+    "Screening flags are aids for checking data, not determinations that a value is wrong or right. "
+    "Check field records and the well's history before correcting or discarding anything, and follow "
+    "local regulations and licensed professional practice for decisions about water supply."
+)
+
+
+def screen(gdf: gpd.GeoDataFrame, value: str, id: str | None = None, **options) -> gpd.GeoDataFrame:
+    """Screen a point layer and return it with status, score and reasons.
+
+    Parameters
+    ----------
+    gdf : geopandas.GeoDataFrame
+        Point measurements with a CRS (or pass ``crs=``).
+    value : str
+        Column of values to screen.
+    id : str, optional
+        Column identifying the points in reasons.
+    **options
+        Any other :class:`~pointsift.config.ScreenConfig` option, e.g.
+        ``k=12``, ``suspect_z=6``, ``permutations=499``.
+
+    Returns
+    -------
+    geopandas.GeoDataFrame
+        A copy of ``gdf`` (rows and columns unchanged, same CRS) with the
+        columns in :data:`ADDED_COLUMNS`.
+
+    Examples
+    --------
+    >>> import geopandas as gpd, numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> x, y = rng.uniform(0, 5000, (2, 300))
+    >>> level = 200 + 0.01 * x + rng.normal(0, 0.2, 300)
+    >>> level[7] = level[7] * 10                    # a decimal slip
+    >>> wells = gpd.GeoDataFrame({"level": level}, geometry=gpd.points_from_xy(x, y), crs="EPSG:32633")
+    >>> out = screen(wells, value="level")
+    >>> out.loc[7, "screen_status"]
+    'suspect'
+    """
+    config = ScreenConfig(value=value, id=id, **options)
+    return screen_frame(gdf, config).frame

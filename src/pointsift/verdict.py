@@ -1,0 +1,182 @@
+"""Turn the evidence of the methods into a status, a score and reasons.
+
+Statuses
+--------
+``suspect``
+    Very likely a wrong value or location: the standardized local residual
+    reaches ``suspect_z`` and the neighbours do not deviate the same way, or
+    a coincident record contradicts it and the neighbours side with the other.
+``review``
+    Worth a field check: the residual reaches ``review_z``; or it reaches
+    ``suspect_z`` but a good share of the neighbours deviate alike (a
+    coherent feature such as a pumping cone or a valley floor, which is real
+    signal, not an error); or two records at one spot disagree and the
+    neighbours cannot tell which is right.
+``ok``
+    Consistent with the neighbours.
+``unscreened``
+    Could not be judged (no value, no location, too few neighbours); the
+    reason says why.
+
+Score
+-----
+``screen_score`` is the size of the standardized local residual, halved when
+the neighbours echo the deviation (evidence of a real feature rather than an
+error), and at least ``suspect_z`` for a contradicted coincident record.
+Larger means stronger evidence of an error. Unscreened rows have no score.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .config import ScreenConfig
+from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation
+from .methods.local import LocalResult
+
+__all__ = ["decide", "format_length", "STATUSES"]
+
+STATUSES = ("suspect", "review", "ok", "unscreened")
+
+
+def format_length(metres: float) -> str:
+    """Plain length for messages: ``"850 m"``, ``"1.2 km"``, ``"35 km"``."""
+    if not np.isfinite(metres):
+        return "an unknown distance"
+    if metres < 1000:
+        return f"{metres:.0f} m"
+    if metres < 20000:
+        return f"{metres / 1000:.1f} km"
+    return f"{metres / 1000:.0f} km"
+
+
+def _num(v: float) -> str:
+    return f"{v:.5g}" if np.isfinite(v) else "n/a"
+
+
+def decide(
+    *,
+    ids: np.ndarray,
+    values: np.ndarray,
+    unscreened_reason: np.ndarray,
+    local: LocalResult,
+    max_neighbour_distance: np.ndarray,
+    autocorr: LocalAutocorrelation | None,
+    coincident: pd.DataFrame,
+    config: ScreenConfig,
+    supporting: tuple[np.ndarray, ...] = (),
+    echo_share: float = 0.34,
+) -> pd.DataFrame:
+    """Status, score and reasons for every row.
+
+    Parameters
+    ----------
+    ids : ndarray of object
+        Identifier per row (used to name coincident partners).
+    values : ndarray
+        Parsed values (NaN where unusable).
+    unscreened_reason : ndarray of object
+        Reason per row from preparation and the graph ("" when screenable).
+    local : LocalResult
+        Robust local residuals.
+    max_neighbour_distance : ndarray
+        Distance to the farthest neighbour used, per row.
+    autocorr : LocalAutocorrelation or None
+        Local Moran's I / Gi* (None when not computed).
+    coincident : pandas.DataFrame
+        From :func:`pointsift.methods.coincident.coincident_conflicts`.
+    config : ScreenConfig
+        Thresholds (``suspect_z``, ``review_z``, ``fdr``).
+    supporting : tuple of ndarray of object
+        Extra sentences per row ("" for none) from other methods, added to
+        the reasons of flagged points.
+    echo_share : float
+        Share of neighbours deviating alike that marks a coherent feature.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``screen_status``, ``screen_score``, ``screen_reasons``.
+    """
+    n = values.size
+    z = local.z
+    unscreened = (unscreened_reason != "") | ~np.isfinite(z)
+    reason_fallback = np.where(unscreened_reason != "", unscreened_reason, "could not be predicted from the neighbours")
+    absz = np.abs(z)
+    echoed = local.echo >= echo_share
+    score = np.where(echoed, 0.5 * absz, absz)
+
+    role = coincident["role"].to_numpy()
+    contradicted = role == "contradicted"
+    undecided = role == "undecided"
+
+    suspect = ~unscreened & (((absz >= config.suspect_z) & ~echoed) | contradicted)
+    review = ~unscreened & ~suspect & ((absz >= config.review_z) | undecided)
+    status = np.where(unscreened, "unscreened", np.where(suspect, "suspect", np.where(review, "review", "ok")))
+    score = np.where(contradicted, np.maximum(score, config.suspect_z), score)
+    score = np.where(unscreened, np.nan, np.round(score, 3))
+
+    # --- reasons, built column-wise -------------------------------------------------
+    count = local.neighbour_count
+    within = [format_length(d) for d in max_neighbour_distance]
+    main = []
+    for i in range(n):
+        if unscreened[i]:
+            main.append(reason_fallback[i])
+            continue
+        a = absz[i]
+        neighbours = f"{count[i]} neighbours within {within[i]}"
+        if a >= config.review_z:
+            side = "above" if z[i] > 0 else "below"
+            text = (
+                f"value {_num(values[i])} is {a:.1f} robust sd {side} the {_num(local.expected[i])} "
+                f"expected from {neighbours}"
+            )
+            if echoed[i]:
+                share = local.echo[i]
+                text += (
+                    f", but {share:.0%} of those neighbours deviate the same way: likely a real local feature "
+                    "(for example a pumping cone or a valley), check before correcting"
+                )
+        else:
+            text = f"within {a:.1f} robust sd of the {_num(local.expected[i])} expected from {neighbours}"
+        main.append(text)
+    parts = [np.array(main, dtype=object)]
+
+    if autocorr is not None:
+        significant = np.isfinite(autocorr.p_adjusted) & (autocorr.p_adjusted <= config.fdr) & ~unscreened
+        outlier = significant & np.isin(autocorr.quadrant, (2, 4))
+        cluster = significant & np.isin(autocorr.quadrant, (1, 3))
+        text = np.full(n, "", dtype=object)
+        for i in np.flatnonzero(outlier | cluster):
+            kind = "spatial outlier" if outlier[i] else "part of a cluster"
+            text[i] = (
+                f"local Moran's I: {kind}, {QUADRANT_WORDS[int(autocorr.quadrant[i])]} "
+                f"(p = {autocorr.p_value[i]:.2g}, adjusted {autocorr.p_adjusted[i]:.2g}; Gi* z = {autocorr.gi_star_z[i]:.1f})"
+            )
+        parts.append(text)
+
+    text = np.full(n, "", dtype=object)
+    diff = coincident["difference"].to_numpy()
+    partner = coincident["partner"].to_numpy()
+    for i in np.flatnonzero(role != ""):
+        other = ids[partner[i]] if partner[i] >= 0 else "another record"
+        if role[i] == "agrees":
+            text[i] = f"a coincident record ({other}) agrees"
+        elif role[i] == "contradicted":
+            text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with {other}"
+        elif role[i] == "supported":
+            text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with this record, not {other}"
+        else:
+            text[i] = f"coincident record disagrees by {_num(diff[i])} ({other}); the neighbours cannot tell which is right"
+    parts.append(text)
+    flagged = np.isin(status, ("suspect", "review"))
+    for extra in supporting:
+        parts.append(np.where(flagged, extra, ""))
+
+    reasons = pd.Series(parts[0])
+    for extra in parts[1:]:
+        extra = pd.Series(extra)
+        reasons = reasons.where(extra == "", reasons + "; " + extra)
+    return pd.DataFrame({"screen_status": status, "screen_score": score, "screen_reasons": reasons.to_numpy(dtype=object)})
