@@ -185,7 +185,10 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             f"The input already has column(s) {', '.join(clash)} (is it a pointsift output?). "
             "Rename or drop them, or screen the original layer."
         )
-    where = f"layer {source.layer!r}" if source and source.layer else "the layer"
+    if source is not None:
+        where = f"layer {source.layer!r} of {source.path!r}" if source.layer else repr(source.path)
+    else:
+        where = "the layer"
     prepared = prepare(frame, config, where=where)
     timings["prepare_s"] = time.perf_counter() - started
     if not prepared.usable.any():
@@ -240,9 +243,8 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         value_tolerance=config.coincident_value_tolerance,
         decisive_z=config.review_z,
     )
-    with np.errstate(all="ignore"):
-        farthest = np.where(graph.mask, graph.distances, np.nan)
-        farthest = np.nanmax(np.where(np.isfinite(farthest), farthest, np.nan), axis=1, initial=np.nan) if farthest.shape[1] else np.full(prepared.n, np.nan)
+    farthest = np.where(graph.mask, graph.distances, -np.inf).max(axis=1, initial=-np.inf)
+    farthest = np.where(np.isfinite(farthest), farthest, np.nan)
 
     t = time.perf_counter()
     verdict = decide(

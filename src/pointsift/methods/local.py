@@ -34,6 +34,7 @@ the wells around it.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -91,9 +92,11 @@ def _bisquare(u: np.ndarray) -> np.ndarray:
 
 def _masked_median(a: np.ndarray, mask: np.ndarray) -> np.ndarray:
     filled = np.where(mask, a, np.nan)
-    with np.errstate(all="ignore"):
-        out = np.nanmedian(filled, axis=1) if filled.shape[1] else np.full(filled.shape[0], np.nan)
-    return out
+    if not filled.shape[1]:
+        return np.full(filled.shape[0], np.nan)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # rows without neighbours give NaN on purpose
+        return np.nanmedian(filled, axis=1)
 
 
 def robust_plane_predict(
@@ -132,9 +135,7 @@ def robust_plane_predict(
     mask = graph.mask & np.isfinite(values[np.where(idx >= 0, idx, 0)])
     safe = np.where(mask, idx, 0)
     count = mask.sum(axis=1)
-    dist = np.where(mask, graph.distances, np.nan)
-    with np.errstate(all="ignore"):
-        length = np.nanmedian(dist, axis=1) if dist.shape[1] else np.full(n, np.nan)
+    length = _masked_median(graph.distances, mask)
     ok = (count >= min_neighbours) & np.isfinite(length) & (length > 0)
     length = np.where(ok, length, 1.0)
     dx = np.where(mask, (xy[safe, 0] - xy[:, 0:1]) / length[:, None], 0.0)
