@@ -108,27 +108,19 @@ def automatic_max_distance(xy: np.ndarray) -> float:
 
 
 def _library_versions() -> dict:
-    import esda
-    import libpysal
-    import pyogrio
-    import pyproj
-    import scipy
-    import shapely
+    # read installed versions without importing esda/libpysal (slow imports)
+    from importlib.metadata import PackageNotFoundError, version
 
-    return {
-        "pointsift": __version__,
-        "python": platform.python_version(),
-        "numpy": np.__version__,
-        "scipy": scipy.__version__,
-        "pandas": pd.__version__,
-        "geopandas": gpd.__version__,
-        "shapely": shapely.__version__,
-        "pyproj": pyproj.__version__,
-        "pyogrio": pyogrio.__version__,
-        "libpysal": libpysal.__version__,
-        "esda": esda.__version__,
-        "gdal": pyogrio.__gdal_version_string__,
-    }
+    import pyogrio
+
+    versions = {"pointsift": __version__, "python": platform.python_version()}
+    for name in ("numpy", "scipy", "pandas", "geopandas", "shapely", "pyproj", "pyogrio", "libpysal", "esda"):
+        try:
+            versions[name] = version(name)
+        except PackageNotFoundError:
+            versions[name] = "not installed"
+    versions["gdal"] = pyogrio.__gdal_version_string__
+    return versions
 
 
 def _detrend(prepared: Prepared, mode: str):

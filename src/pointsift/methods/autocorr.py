@@ -15,22 +15,25 @@ statistics are increasing functions of the sum of the neighbours' values, so
 one set of draws of that sum serves both; the p-value is esda's folded
 one-sided ``(min(#>=, #<=) + 1) / (P + 1)``.
 
-Two kernels draw the sums, both vectorised numpy (no just-in-time compile):
-
-* exact: ``P`` draws per point, each excluding the point itself; used while
-  ``n x P x k`` is at most :data:`EXACT_BUDGET`;
-* pooled: above that, a single reference set of ``100 (P + 1) - 1`` draws per
-  neighbour count, shared by every point. Leaving the point's own value in the
-  pool changes the reference distribution by O(k / n) (k / n < 0.001 where it
-  is used), and sharing draws makes p-values of different points dependent
-  but each one valid.
+The draws are shared by all points, as esda does (one matrix of random index
+sets reused for every point): ``Q`` random k-subsets of all n rows are drawn
+once (distinct rows within a subset), their sums of standardized values are
+computed and sorted, and each point's counts of sums at least / at most its
+own are read off by binary search. The draws that contain the point itself
+are then removed from its counts (an inverted index makes that one pass over
+the ``Q x k`` drawn rows), so what remains is a uniform sample of k-subsets
+of the *other* n - 1 values: the conditional permutation distribution, exactly,
+with ``Q`` minus those draws permutations. Vectorised numpy throughout: no
+just-in-time compile, and the cost does not grow with n per point (esda's
+does, LIBRARY-NOTES).
 
 Benjamini-Hochberg needs p-values below ``alpha / m`` for the smallest; with
 999 permutations the floor is 0.001, so over a thousand points nothing could
-ever be rejected. pointsift therefore draws more permutations for the points
-at the floor: every point whose count of more extreme draws is zero gets
-another ``99 (P + 1)`` draws (floor 1 / (100 (P + 1)), 1e-5 by default); the
-pooled kernel starts at that resolution.
+ever be rejected. pointsift therefore uses more permutations for the points
+at the floor: every point whose count of more extreme draws is zero after the
+first ``P`` draws is judged on ``100 (P + 1) - 1`` draws (floor about
+1 / (100 (P + 1)), 1e-5 by default). The run record says how many points got
+them.
 """
 
 from __future__ import annotations
@@ -46,11 +49,7 @@ __all__ = [
     "local_autocorrelation",
     "benjamini_hochberg",
     "QUADRANT_WORDS",
-    "EXACT_BUDGET",
 ]
-
-#: Largest ``n * permutations * k`` drawn point by point.
-EXACT_BUDGET = 60_000_000
 
 QUADRANT_WORDS = {
     1: "high among high",
@@ -80,7 +79,7 @@ class LocalAutocorrelation:
     permutations : ndarray of int
         Permutations behind each p-value (more at the floor).
     kernel : str
-        ``"exact"`` or ``"pooled"``.
+        How the draws were made (``"shared draws"``).
     """
 
     moran_i: np.ndarray
@@ -124,65 +123,45 @@ def benjamini_hochberg(p: np.ndarray) -> np.ndarray:
     return out
 
 
-def _draw_without_replacement(rng, n_rows: int, draws: int, k: int, population: int, exclude: np.ndarray | None):
-    """Indices (n_rows, draws, k) into range(population), distinct within each
-    draw, never equal to ``exclude[row]``."""
-    size = population - (1 if exclude is not None else 0)
-    idx = rng.integers(0, size, size=(n_rows, draws, k))
-    for _ in range(64):
-        if k < 2:
-            break
-        sorted_idx = np.sort(idx, axis=2)
-        clash = (np.diff(sorted_idx, axis=2) == 0).any(axis=2)
+def _draw_subsets(rng, draws: int, k: int, population: int) -> np.ndarray:
+    """``draws`` random k-subsets of range(population), rows distinct within each."""
+    if population <= max(4 * k, 64):
+        # small populations: distinct by construction (random keys, take the k smallest)
+        return np.argpartition(rng.random((draws, population)), k - 1, axis=1)[:, :k] if k < population else np.tile(np.arange(population), (draws, 1))
+    idx = rng.integers(0, population, size=(draws, k))
+    if k < 2:
+        return idx
+    for _ in range(200):
+        sorted_idx = np.sort(idx, axis=1)
+        clash = (np.diff(sorted_idx, axis=1) == 0).any(axis=1)
         if not clash.any():
-            break
-        rows, cols = np.nonzero(clash)
-        idx[rows, cols] = rng.integers(0, size, size=(rows.size, k))
-    if exclude is not None:
-        idx = idx + (idx >= exclude[:, None, None])
-    return idx
+            return idx
+        idx[clash] = rng.integers(0, population, size=(int(clash.sum()), k))
+    raise RuntimeError("could not draw distinct neighbour sets; too few points for k")
 
 
-def _exact_counts(z, rows, k_rows, lag_sum_obs, draws, rng, chunk_elements=4_000_000):
-    """Counts of permuted neighbour sums >= and <= the observed, per row."""
-    n = z.size
-    kmax = int(k_rows.max())
-    ge = np.zeros(rows.size, dtype=np.int64)
-    le = np.zeros(rows.size, dtype=np.int64)
-    step = max(1, chunk_elements // max(draws * kmax, 1))
+def _shared_counts(z, rows, obs, subsets, sums):
+    """Counts of permuted sums >= / <= the observed, for ``rows``, over the
+    given shared draws, leaving out draws that contain the row itself."""
+    draws = sums.size
     tolerance = 1e-12 * max(1.0, float(np.abs(z).max()))
-    for start in range(0, rows.size, step):
-        sl = slice(start, start + step)
-        r = rows[sl]
-        idx = _draw_without_replacement(rng, r.size, draws, kmax, n, r)
-        vals = z[idx]
-        if (k_rows[sl] < kmax).any():
-            keep = np.arange(kmax)[None, None, :] < k_rows[sl][:, None, None]
-            vals = np.where(keep, vals, 0.0)
-        sums = vals.sum(axis=2)
-        obs = lag_sum_obs[sl][:, None]
-        ge[sl] = (sums >= obs - tolerance).sum(axis=1)
-        le[sl] = (sums <= obs + tolerance).sum(axis=1)
-    return ge, le
-
-
-def _pooled_counts(z, k_rows, lag_sum_obs, draws, rng):
-    ge = np.zeros(k_rows.size, dtype=np.int64)
-    le = np.zeros(k_rows.size, dtype=np.int64)
-    tolerance = 1e-12 * max(1.0, float(np.abs(z).max()))
-    for k in np.unique(k_rows):
-        these = np.flatnonzero(k_rows == k)
-        reference = np.empty(draws)
-        block = max(1, 4_000_000 // int(k))
-        for start in range(0, draws, block):
-            m = min(block, draws - start)
-            idx = _draw_without_replacement(rng, 1, m, int(k), z.size, None)[0]
-            reference[start : start + m] = z[idx].sum(axis=1)
-        reference.sort()
-        obs = lag_sum_obs[these]
-        ge[these] = draws - np.searchsorted(reference, obs - tolerance, side="left")
-        le[these] = np.searchsorted(reference, obs + tolerance, side="right")
-    return ge, le
+    ordered = np.sort(sums)
+    ge = draws - np.searchsorted(ordered, obs - tolerance, side="left")
+    le = np.searchsorted(ordered, obs + tolerance, side="right")
+    valid = np.full(rows.size, draws, dtype=np.int64)
+    # inverted index: which drawn entries are one of our rows
+    position = np.full(z.size, -1, dtype=np.int64)
+    position[rows] = np.arange(rows.size)
+    hit_position = position[subsets.ravel()]
+    hit = hit_position >= 0
+    if hit.any():
+        where = hit_position[hit]
+        draw_of = np.repeat(np.arange(draws), subsets.shape[1])[hit]
+        s = sums[draw_of]
+        ge -= np.bincount(where, weights=(s >= obs[where] - tolerance), minlength=rows.size).astype(np.int64)
+        le -= np.bincount(where, weights=(s <= obs[where] + tolerance), minlength=rows.size).astype(np.int64)
+        valid -= np.bincount(where, minlength=rows.size)
+    return ge, le, valid
 
 
 def local_autocorrelation(
@@ -192,7 +171,6 @@ def local_autocorrelation(
     permutations: int = 999,
     seed: int = 0,
     refine: bool = True,
-    kernel: str = "auto",
 ) -> LocalAutocorrelation:
     """Local Moran's I and Gi* with conditional permutation p-values.
 
@@ -210,8 +188,6 @@ def local_autocorrelation(
         Seed for the draws.
     refine : bool
         Draw more permutations for points at the p-value floor.
-    kernel : {"auto", "exact", "pooled"}
-        Force a kernel (tests); "auto" picks by :data:`EXACT_BUDGET`.
 
     Returns
     -------
@@ -236,7 +212,6 @@ def local_autocorrelation(
     gi_z = np.full(n_all, np.nan)
     p_value = np.full(n_all, np.nan)
     perms = np.zeros(n_all, dtype=np.int64)
-    chosen = kernel
     if n < 3 or not has.any():
         return LocalAutocorrelation(moran, quadrant, gi_z, p_value, p_value.copy(), perms, "none")
 
@@ -257,25 +232,25 @@ def local_autocorrelation(
 
     rng = np.random.default_rng(seed)
     rows = np.flatnonzero(has)
-    if chosen == "auto":
-        chosen = "exact" if n * permutations * max(int(k_rows.max()), 1) <= EXACT_BUDGET else "pooled"
-    if chosen == "exact":
-        ge, le = _exact_counts(z, rows, k_rows[rows], lag_sum[rows], permutations, rng)
-        draws = np.full(rows.size, permutations)
+    ge = np.zeros(rows.size, dtype=np.int64)
+    le = np.zeros(rows.size, dtype=np.int64)
+    draws = np.zeros(rows.size, dtype=np.int64)
+    extended = 100 * (permutations + 1) - 1 if refine else permutations
+    for k in np.unique(k_rows[rows]):
+        group = np.flatnonzero(k_rows[rows] == k)
+        if k >= n:  # every other point is a neighbour: nothing to permute
+            ge[group] = le[group] = draws[group] = 0
+            continue
+        subsets = _draw_subsets(rng, extended, int(k), n)
+        sums = z[subsets].sum(axis=1)
+        g_rows = rows[group]
+        g_ge, g_le, g_valid = _shared_counts(z, g_rows, lag_sum[g_rows], subsets[:permutations], sums[:permutations])
         if refine:
-            floor = np.minimum(ge, le) == 0
+            floor = np.minimum(g_ge, g_le) == 0
             if floor.any():
-                extra = 99 * (permutations + 1)
-                ge2, le2 = _exact_counts(z, rows[floor], k_rows[rows][floor], lag_sum[rows][floor], extra, rng)
-                ge[floor] += ge2
-                le[floor] += le2
-                draws[floor] += extra
-    elif chosen == "pooled":
-        pool = 100 * (permutations + 1) - 1
-        ge, le = _pooled_counts(z, k_rows[rows], lag_sum[rows], pool, rng)
-        draws = np.full(rows.size, pool)
-    else:
-        raise ValueError(f"kernel {kernel!r} is not one of auto, exact, pooled")
+                f_ge, f_le, f_valid = _shared_counts(z, g_rows[floor], lag_sum[g_rows][floor], subsets, sums)
+                g_ge[floor], g_le[floor], g_valid[floor] = f_ge, f_le, f_valid
+        ge[group], le[group], draws[group] = g_ge, g_le, g_valid
     p = (np.minimum(ge, le) + 1.0) / (draws + 1.0)
 
     target = np.flatnonzero(used)[rows]
@@ -284,4 +259,4 @@ def local_autocorrelation(
     gi_z[target] = gi[rows]
     p_value[target] = np.minimum(p, 1.0)
     perms[target] = draws
-    return LocalAutocorrelation(moran, quadrant, gi_z, p_value, benjamini_hochberg(p_value), perms, chosen)
+    return LocalAutocorrelation(moran, quadrant, gi_z, p_value, benjamini_hochberg(p_value), perms, "shared draws")
