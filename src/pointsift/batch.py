@@ -587,6 +587,8 @@ def parse_plan(
             entry_ok = False
         if not entry_ok or defaults_bad:
             continue
+        if options.get("within") is not None and "graph" not in options:
+            options["graph"] = "band"  # as on the command line: a band width means a distance band
         try:
             config = ScreenConfig(**options)
         except ConfigError as exc:
@@ -618,6 +620,9 @@ def parse_plan(
             )
         )
 
+    if any(spec.report for spec in specs) and not _reports_available():
+        errors.add("batch" if batch_report else "defaults", "report",
+                   "reports are not available in this version of pointsift; set report = false.")
     chosen_out = out_dir if out_dir is not None else plan_out_dir
     if chosen_out is None:
         errors.add("batch", "out_dir", 'no output directory: set out_dir = "screened" in [batch] or pass --out-dir.')
@@ -1172,19 +1177,19 @@ class _Task:
     version: str
 
 
-_FRAME_CACHE: dict = {}
+def _group_filter(by: str, group: str | None):
+    """Row selector for one group, by the same labels the expansion used."""
 
+    def select(frame):
+        if by not in frame.columns:
+            from .errors import InputError
 
-def _grouped_frame(unit: Unit):
-    """Read a grouped layer once per worker, then serve its groups from memory."""
-    stat = unit.path.stat()
-    key = (str(unit.path.resolve()), stat.st_mtime_ns, stat.st_size, unit.layer, unit.x, unit.y,
-           unit.config.crs, unit.by)
-    if key not in _FRAME_CACHE:
-        _FRAME_CACHE.clear()
-        frame, info = _read_frame(unit.path, unit.layer, unit.x, unit.y, unit.config.crs)
-        _FRAME_CACHE[key] = (frame, info, group_labels(frame[unit.by]))
-    return _FRAME_CACHE[key]
+            raise InputError(f"grouping column {by!r} is no longer in the layer; it was there when the batch started.")
+        labels = group_labels(frame[by])
+        keep = [label == group for label in labels]
+        return frame.loc[keep].copy()
+
+    return select
 
 
 def _lonlat_extent(bounds, crs) -> tuple[float, float, float, float] | None:
@@ -1215,56 +1220,43 @@ def _crs_text(crs) -> str:
 
 def _screen_unit(task: _Task) -> UnitOutcome:
     """Screen one unit into the staging folder, then move the files into place."""
+    from .run import screen_file
+
     unit = task.unit
     started = time.perf_counter()
     staged_out = task.staging / task.out_path.name
     staged_report = task.staging / task.report_path.name if task.report_path else None
     try:
-        from . import io as pio
-
-        if unit.by is None:
-            from .run import screen_file
-
-            run = screen_file(
-                unit.path, staged_out, unit.config, layer=unit.layer, x=unit.x, y=unit.y,
-                overwrite=True, report_path=staged_report,
-            )
-            counts = dict(getattr(run, "counts", {}) or {})
-        else:
-            from .pipeline import screen_frame
-
-            frame, info, labels = _grouped_frame(unit)
-            import numpy as np
-
-            labels_array = np.array(labels, dtype=object)
-            keep = labels_array == unit.group if unit.group is not None else np.array(
-                [label is None for label in labels], dtype=bool)
-            subset = frame.loc[keep].copy()
-            result = screen_frame(subset, unit.config, source=info)
-            pio.write_screen(result, staged_out, overwrite=True)
-            if staged_report is not None:
-                _write_report(result, staged_report)
-            counts = dict(result.counts)
-        import pyogrio
-
-        info = pyogrio.read_info(staged_out)
-        bounds = info.get("total_bounds")
-        crs = info.get("crs")
-        points = int(info.get("features", -1))
-        if points < 0:
-            points = int(sum(counts.values()))
-        screen_seconds = time.perf_counter() - started
+        run = screen_file(
+            unit.path,
+            staged_out,
+            unit.config,
+            layer=unit.layer,
+            x=unit.x,
+            y=unit.y,
+            overwrite=True,
+            frame_filter=_group_filter(unit.by, unit.group) if unit.by else None,
+            source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
+        )
+        if staged_report is not None:
+            _write_report(run.result, staged_report)
+        screened = run.result.frame
+        prepared = getattr(run.result, "prepared", None)
+        crs = getattr(prepared, "input_crs", None) or screened.crs
+        bounds = screened.total_bounds if len(screened) else None
+        counts = run.counts
+        screen_seconds = run.seconds
         os.replace(staged_out, task.out_path)
-        if staged_report is not None and staged_report.exists():
+        if staged_report is not None:
             os.replace(staged_report, task.report_path)
         outcome = UnitOutcome(
             unit=unit,
             outcome=DONE,
             counts={s: int(counts.get(s, 0)) for s in _STATUSES},
-            points=points,
+            points=int(len(screened)),
             screen_seconds=screen_seconds,
             output=task.out_path.name,
-            report=task.report_path.name if task.report_path and task.report_path.exists() else "",
+            report=task.report_path.name if task.report_path else "",
             input_sha256=task.input_sha256,
             fingerprint=task.fingerprint,
             input_crs=_crs_text(crs),
@@ -1282,6 +1274,15 @@ def _screen_unit(task: _Task) -> UnitOutcome:
         )
     outcome.seconds = time.perf_counter() - started
     return outcome
+
+
+def _reports_available() -> bool:
+    import importlib
+    import importlib.util
+
+    if importlib.util.find_spec("pointsift.report") is None:
+        return False
+    return hasattr(importlib.import_module("pointsift.report"), "write_report")
 
 
 def _write_report(result, path: Path) -> None:
@@ -1484,8 +1485,17 @@ class _StopRequest:
 
 
 def _mp_context():
-    methods = multiprocessing.get_all_start_methods()
-    return multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+    """Worker processes that do not inherit the parent's threads or open files.
+
+    ``forkserver`` (Linux) forks workers from a small server that has already
+    imported the screening modules, so each worker starts in milliseconds;
+    ``spawn`` elsewhere.
+    """
+    if "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(["pointsift.batch", "pointsift.run", "pointsift.pipeline", "pointsift.io"])
+        return context
+    return multiprocessing.get_context("spawn")
 
 
 def run_batch(

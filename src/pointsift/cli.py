@@ -209,11 +209,224 @@ def screen(ctx, input_path, out_path, overwrite, layer, x_column, y_column, **op
         click.echo(f"Wrote {run.output_path} in {run.seconds:.1f} s.")
 
 
+def _number(value) -> str:
+    import math
+
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:.4g}"
+
+
+def _parse_directions(ctx, param, value):
+    try:
+        directions = tuple(float(part) for part in str(value).split(",") if part.strip())
+    except ValueError:
+        raise click.BadParameter(f"{value!r} is not a comma-separated list of azimuths in degrees, e.g. '90,0'.")
+    if not directions:
+        raise click.BadParameter("give at least one azimuth, e.g. '90' for west-east strips.")
+    return directions
+
+
+def _echo_description(description, value_column: str, where: str) -> None:
+    from .methods.strips import _direction_words
+
+    prepared = description.prepared
+    s = description.summary
+    n_rows = prepared.n
+    click.echo(f"Described {n_rows} rows of {value_column!r} in {where}: {s.n} used, {n_rows - s.n} unscreened.")
+    click.echo(f"Distances in {prepared.work_crs.name} ({prepared.work_crs.to_string()}).")
+    for note in prepared.notes:
+        click.echo(f"Note: {note}")
+    click.echo(
+        f"Values: mean {_number(s.mean)}, median {_number(s.median)}, sd {_number(s.sd)} "
+        f"and variance {_number(s.variance)} (n - 1 denominator)"
+    )
+    click.echo(
+        f"  min {_number(s.min)}, 5% {_number(s.p05)}, 25% {_number(s.p25)}, 75% {_number(s.p75)}, "
+        f"95% {_number(s.p95)}, max {_number(s.max)} (percentiles by linear interpolation); IQR {_number(s.iqr)}"
+    )
+    click.echo(f"  robust sd: IQR/1.349 = {_number(s.robust_sd_iqr)}, 1.4826 x MAD = {_number(s.robust_sd_mad)}")
+    click.echo(
+        f"  skewness {_number(s.skewness)} (adjusted Fisher-Pearson G1), "
+        f"excess kurtosis {_number(s.kurtosis)} (adjusted G2)"
+    )
+    if description.shift is not None:
+        shift = description.shift
+        kept = shift.without_suspects
+        click.echo(
+            f"Without the {shift.n_suspects} suspect row{'s' if shift.n_suspects != 1 else ''}: "
+            f"mean {_number(kept.mean)} (moves {shift.mean_shift:+.4g}), sd {_number(kept.sd)} (moves {shift.sd_shift:+.4g})"
+        )
+    if description.unscreened:
+        click.echo("Unscreened, by reason:")
+        for reason, count in list(description.unscreened.items())[:5]:
+            click.echo(f"  {count} x {reason}")
+    click.echo("")
+    click.echo(description.stem_leaf.text())
+    click.echo("")
+    strips = description.strips
+    click.echo(f"Strips (flagged when |u| > {strips.flag_u:g}; u is calibrated for each strip's own n):")
+    table = strips.table
+    ids = prepared.ids
+    for direction, width in strips.widths.items():
+        part = table[table["direction"] == direction]
+        judged = int(part["u"].notna().sum())
+        flagged = part[part["flagged"]]
+        click.echo(
+            f"  {_direction_words(direction)}, {width:g} m wide: {len(part)} strips, "
+            f"{judged} judged, {len(flagged)} flagged"
+        )
+        for _, row in flagged.iterrows():
+            click.echo(
+                f"    strip {row['strip']}: n {row['n']}, mean {_number(row['mean'])}, median {_number(row['median'])}, "
+                f"u {row['u']:+.2f}; extreme value {_number(row['extreme_value'])} at {ids[int(row['extreme_row'])]}"
+            )
+    info = description.trend_info
+    if description.trend is not None:
+        click.echo(
+            f"Trend: {info['method']} explains {100 * info['variance_explained']:.1f} % of the variance "
+            f"(robust share {100 * info['robust_variance_explained']:.1f} %)."
+        )
+    else:
+        click.echo(f"Trend: {info.get('note', 'none requested')}.")
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
+@screen_options
+@click.option("--out", "out_path", default=None, type=click.Path(dir_okay=False), help="Also write the strips layer and summary tables to this GeoPackage (.gpkg).")
+@click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
+@click.option("--strips", "directions", default="90,0", callback=_parse_directions, help="Strip directions: azimuths in degrees along which strips run, comma-separated; 90 west-east, 0 south-north (default 90,0).")
+@click.option("--strip-width", type=LENGTH, default=None, help="Strip width, e.g. 500m (default: from the point density).")
+@click.option("--min-strip-points", type=click.IntRange(5, None), default=5, help="Smaller strips are too small to judge (default 5).")
+@click.option("--stem-unit", type=click.FloatRange(min=0, min_open=True), default=None, help="Stem unit of the stem-and-leaf display, a power of ten (default: chosen).")
+@click.option("--stem-split", type=click.Choice(["1", "2", "5"]), default=None, help="Lines per stem (default: chosen).")
+@click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")
+@click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png and strips.png into.")
+@click.option("--with-screen", is_flag=True, help="Screen first, and also summarise without the suspect rows.")
+@click.pass_context
+def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, directions, strip_width,
+             min_strip_points, stem_unit, stem_split, bin_width, figures_dir, with_screen, **options):
+    """Describe INPUT: summary figures, stem-and-leaf display, strip statistics
+    across the area and the regional trend. Reads INPUT exactly as 'screen' does."""
+    import os
+    from datetime import datetime, timezone
+    from pathlib import Path
+
+    from .explore import describe as describe_prepared
+    from .explore import description_layers
+    from .io import read_points, run_info_table, write_geopackage
+    from .prepare import prepare
+
+    config = config_from_options(options)
+    if figures_dir is not None and not Path(figures_dir).is_dir():
+        raise ConfigError(f"--figures folder {figures_dir!r} does not exist. Create it first or choose another folder.")
+    frame, source = read_points(input_path, layer=layer, x=x_column, y=y_column, crs=config.crs)
+    where = f"layer {source.layer!r} of {source.path!r}" if source.layer else repr(source.path)
+    suspects = None
+    if "screen_status" in frame.columns:
+        # A screened layer: summarise without the rows it already calls suspect.
+        suspects = (frame["screen_status"] == "suspect").to_numpy()
+        prepared = prepare(frame, config, where=where)
+    elif with_screen:
+        from .pipeline import screen_frame
+
+        result = screen_frame(frame, config, source=source)
+        suspects = (result.frame["screen_status"] == "suspect").to_numpy()
+        prepared = result.prepared
+    else:
+        prepared = prepare(frame, config, where=where)
+    description = describe_prepared(
+        prepared,
+        directions=directions,
+        strip_width=strip_width,
+        min_strip_n=min_strip_points,
+        trend=config.detrend,
+        stem_unit=stem_unit,
+        split=int(stem_split) if stem_split else None,
+        suspect_mask=suspects,
+        figures=figures_dir is not None,
+        bin_width=bin_width,
+        value_label=config.value,
+    )
+    if not ctx.obj.get("quiet"):
+        _echo_description(description, config.value, where)
+    if figures_dir is not None:
+        for name, file_name in (("histogram", "histogram.png"), ("strip_profiles", "strips.png")):
+            description.figures[name].savefig(os.path.join(figures_dir, file_name), dpi=150)
+        if not ctx.obj.get("quiet"):
+            click.echo(f"Wrote histogram.png and strips.png to {figures_dir}.")
+    if out_path is not None:
+        layers = description_layers(description)
+        layers["run_info"] = run_info_table(
+            {
+                "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+                "command": "describe",
+                "input_path": source.path,
+                "input_layer": source.layer,
+                "input_sha256": source.sha256,
+                "rows": int(prepared.n),
+                "value_column": config.value,
+                "input_crs": prepared.input_crs.to_string(),
+                "work_crs": prepared.work_crs.to_string(),
+                "strip_widths_m": {f"{d:g}": w for d, w in description.strips.widths.items()},
+                "trend": description.trend_info,
+                "notes": list(prepared.notes),
+            }
+        )
+        written = write_geopackage(out_path, layers, overwrite=overwrite, protect=(os.fspath(input_path),))
+        if not ctx.obj.get("quiet"):
+            click.echo(f"Wrote {written} (layers {', '.join(layers)}).")
+
+
+def _batch_options(func):
+    """The screen options for ``batch``: --value optional (a plan names it), --layer repeatable."""
+    probe = screen_options(lambda: None)
+    params = getattr(func, "__click_params__", [])
+    for param in probe.__click_params__:
+        if param.name == "layer":
+            continue
+        if param.name == "value":
+            param.required = False
+            param.help = "Column holding the measured values (direct form; a plan sets it in [defaults])."
+        params.append(param)
+    func.__click_params__ = params
+    return func
+
+
+@cli.command()
+@click.argument("inputs", nargs=-1, required=True, metavar="PLAN.toml | INPUTS...")
+@_batch_options
+@click.option("--layer", "layers", multiple=True, help="GeoPackage layer to screen; repeat for several (default: every layer).")
+@click.option("--by", default=None, help="Screen each group of this column on its own, e.g. network_id or a campaign date column.")
+@click.option("--out-dir", type=click.Path(file_okay=False), default=None, help="Folder for the outputs and the batch index (a plan may set out_dir).")
+@click.option("--jobs", "-j", type=click.IntRange(1, None), default=None, help="Worker processes (default 1, or the plan's jobs).")
+@click.option("--force", is_flag=True, help="Redo every input, also those whose output is up to date.")
+@click.option("-q", "--quiet", "batch_quiet", is_flag=True, help="No progress and no summary.")
+@click.pass_context
+def batch(ctx, inputs, layers, by, out_dir, jobs, force, batch_quiet, x_column, y_column, **options):
+    """Screen many inputs: PLAN.toml, or files, globs and folders with --value and --out-dir.
+
+    Writes one GeoPackage per file, layer or group, and batch-index.csv / .gpkg.
+    Up-to-date outputs are skipped. Exit code 0 all done, 3 some inputs failed
+    (listed in the index), 2 unusable plan, 130 stopped by Ctrl-C. See docs/batch.md.
+    """
+    from .batch import run_command
+
+    quiet = batch_quiet or bool(ctx.obj.get("quiet"))
+    plan_form = len(inputs) == 1 and inputs[0].lower().endswith(".toml")
+    if plan_form or options.get("value") is None:
+        chosen = {_OPTION_TO_CONFIG[name]: v for name, v in options.items() if v is not None}
+    else:
+        chosen = config_from_options(options).as_record()
+    result = run_command(inputs, out_dir=out_dir, jobs=jobs, force=force, quiet=quiet, layers=layers, by=by,
+                         x=x_column, y=y_column, options=chosen)
+    ctx.exit(result.exit_code)
+
+
 def main(argv=None) -> int:
     """Entry point: run the CLI and map exceptions to exit codes."""
     verbose = any(a in ("-v", "-vv", "--verbose") for a in (argv if argv is not None else sys.argv[1:]))
     try:
-        cli.main(args=argv, prog_name="pointsift", standalone_mode=False)
+        code = cli.main(args=argv, prog_name="pointsift", standalone_mode=False)
     except click.exceptions.Abort:
         click.echo("Stopped.", err=True)
         return 130
@@ -238,7 +451,8 @@ def main(argv=None) -> int:
         else:
             click.echo("Run again with -v to see the traceback, and report it with the command you ran.", err=True)
         return EXIT_DATA
-    return EXIT_OK
+    # ctx.exit(n) inside a command (batch: 3 when some inputs failed) comes back here as n
+    return code if isinstance(code, int) else EXIT_OK
 
 
 if __name__ == "__main__":  # pragma: no cover
