@@ -12,6 +12,7 @@ from __future__ import annotations
 import hashlib
 import os
 import textwrap
+import warnings
 import tomllib
 from pathlib import Path
 
@@ -44,7 +45,9 @@ def synthetic_points(n: int = 120, seed: int = 0, *, crs: str | None = CRS, extr
 
 def write_gpkg(path: Path, layers: dict[str, gpd.GeoDataFrame]) -> Path:
     for name, frame in layers.items():
-        pyogrio.write_dataframe(frame, path, layer=name, driver="GPKG", append=path.exists())
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message="'crs' was not provided")  # layers without CRS on purpose
+            pyogrio.write_dataframe(frame, path, layer=name, driver="GPKG", append=path.exists())
     return path
 
 
@@ -261,6 +264,7 @@ def test_expand_files_layers_groups_and_unique_names(tmp_path):
     assert dated == [str(d)[:10] for d in np.unique(campaigns)]
 
 
+@pytest.mark.filterwarnings("ignore:GPKG. bad application_id:RuntimeWarning")
 def test_expand_records_unreadable_file_and_missing_group_column(tmp_path):
     write_gpkg(tmp_path / "good.gpkg", {"wells": synthetic_points()})
     (tmp_path / "broken.gpkg").write_bytes(b"SQLite format 3\x00" + bytes(2000))
@@ -332,3 +336,187 @@ def test_index_written_as_csv_and_lonlat_extent_layer(tmp_path):
     np.testing.assert_allclose(layer.geometry.iloc[0].bounds, lonlat, rtol=0, atol=1e-9)
     assert layer.geometry.iloc[2] is None or layer.geometry.iloc[2].is_empty
     assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp") or ".tmp." in p.name]
+
+
+# ---------------------------------------------------------------------------
+# running batches (the real screening spine, small invented inputs)
+
+FAST = {"value": "level_m", "id": "well", "permutations": 99}
+
+
+def make_programme(root: Path) -> Path:
+    """A monitoring programme with good and bad inputs; returns the plan path."""
+    data = root / "data"
+    data.mkdir()
+    write_gpkg(data / "north.gpkg", {"wells": synthetic_points(90, seed=11)})
+    write_gpkg(data / "south.gpkg", {"wells": synthetic_points(70, seed=12)})
+    (data / "corrupt.gpkg").write_bytes(b"SQLite format 3\x00" + bytes(4096))  # a truncated download
+    write_gpkg(data / "no_value.gpkg", {"wells": synthetic_points(60, seed=13).rename(columns={"level_m": "head_m"})})
+    write_gpkg(data / "no_crs.gpkg", {"wells": synthetic_points(60, seed=14, crs=None)})
+    grouped = root / "grouped"
+    grouped.mkdir()
+    network = np.repeat(np.array(["A", "B", "C"], dtype=object), [50, 40, 30])
+    write_gpkg(grouped / "regional.gpkg", {"wells": synthetic_points(120, seed=15, extra={"network": network})})
+    springs = synthetic_points(50, seed=16)
+    table = pd.DataFrame({"well": springs["well"], "level_m": springs["level_m"],
+                          "easting": springs.geometry.x, "northing": springs.geometry.y})
+    table.to_csv(root / "springs.csv", index=False)
+    plan = root / "plan.toml"
+    plan.write_text(textwrap.dedent("""
+        [batch]
+        out_dir = "screened"
+
+        [defaults]
+        value = "level_m"
+        id = "well"
+        permutations = 99
+
+        [[input]]
+        path = "data"
+
+        [[input]]
+        path = "grouped/regional.gpkg"
+        by = "network"
+
+        [[input]]
+        path = "springs.csv"
+        x = "easting"
+        y = "northing"
+        crs = "EPSG:32633"
+    """))
+    return plan
+
+
+def read_index(out_dir: Path) -> pd.DataFrame:
+    return pd.read_csv(out_dir / "batch-index.csv", keep_default_na=False, dtype=str).set_index("unit")
+
+
+@pytest.mark.filterwarnings("ignore:GPKG. bad application_id:RuntimeWarning")
+def test_batch_over_a_programme_with_bad_inputs(tmp_path, capsys):
+    from pointsift.cli import main
+
+    plan = make_programme(tmp_path)
+    code = main(["batch", str(plan)])
+    captured = capsys.readouterr()
+    assert code == batch.EXIT_SOME_FAILED == 3
+    out_dir = tmp_path / "screened"
+    index = read_index(out_dir)
+    assert index["outcome"].to_dict() == {
+        "corrupt": "failed",
+        "no_crs": "failed",
+        "no_value": "failed",
+        "north": "done",
+        "south": "done",
+        "regional__network-A": "done",
+        "regional__network-B": "done",
+        "regional__network-C": "done",
+        "springs": "done",
+    }
+    assert "corrupt.gpkg" in index.loc["corrupt", "message"]
+    assert "has no CRS" in index.loc["no_crs", "message"]
+    assert "no column 'level_m'" in index.loc["no_value", "message"] and "head_m" in index.loc["no_value", "message"]
+    assert "9 units: 6 done, 3 failed" in captured.err
+    # each output read back with pyogrio: every input row is there, with a status word
+    expected_rows = {"north": 90, "south": 70, "regional__network-A": 50, "regional__network-B": 40,
+                     "regional__network-C": 30, "springs": 50}
+    for unit, rows in expected_rows.items():
+        screened = pyogrio.read_dataframe(out_dir / f"{unit}.gpkg", layer="screened")
+        assert len(screened) == rows
+        assert set(screened["screen_status"]) <= {"suspect", "review", "ok", "unscreened"}
+        counts = screened["screen_status"].value_counts()
+        assert [int(index.loc[unit, s] or 0) for s in ("suspect", "review", "ok", "unscreened")] == [
+            int(counts.get(s, 0)) for s in ("suspect", "review", "ok", "unscreened")]
+        assert index.loc[unit, "output"] == f"{unit}.gpkg"
+    # a group holds exactly its rows (reference: pandas selection on the input)
+    regional = pyogrio.read_dataframe(tmp_path / "grouped" / "regional.gpkg")
+    group_b = pyogrio.read_dataframe(out_dir / "regional__network-B.gpkg", layer="screened")
+    assert group_b["well"].tolist() == regional.loc[regional["network"] == "B", "well"].tolist()
+    # extent polygons in longitude/latitude contain the points (reference: pyproj + shapely)
+    layer = pyogrio.read_dataframe(out_dir / "batch-index.gpkg", layer="batch_index").set_index("unit")
+    north = pyogrio.read_dataframe(tmp_path / "data" / "north.gpkg").to_crs("EPSG:4326")
+    assert layer.loc["north", "geometry"].buffer(1e-9).contains(shapely.MultiPoint(north.geometry.tolist()))
+    assert layer.loc["corrupt", "geometry"] is None
+    # nothing partial: only outputs, their records and the index
+    expected = {f"{u}.gpkg" for u in expected_rows} | {f"{u}.batch.json" for u in expected_rows} | {
+        "batch-index.csv", "batch-index.gpkg"}
+    assert {p.name for p in out_dir.iterdir()} == expected
+
+
+def test_rerun_skips_touched_input_redone_option_change_redoes_all(tmp_path):
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(3):
+        write_gpkg(data / f"net{seed}.gpkg", {"wells": synthetic_points(60, seed=seed)})
+    out_dir = tmp_path / "out"
+
+    def run(**options):
+        plan = batch.plan_from_args([str(data)], out_dir=out_dir, options={**FAST, **options})
+        result = batch.run_batch(plan)
+        return {o.unit.name: o.outcome for o in result.outcomes}
+
+    assert run() == {"net0": "done", "net1": "done", "net2": "done"}
+    written = {p.name: p.stat().st_mtime_ns for p in out_dir.glob("net*.gpkg")}
+    assert run() == {"net0": "skipped-up-to-date", "net1": "skipped-up-to-date", "net2": "skipped-up-to-date"}
+    assert {p.name: p.stat().st_mtime_ns for p in out_dir.glob("net*.gpkg")} == written  # not rewritten
+    # a new modification time alone is not a change of content
+    os.utime(data / "net0.gpkg", ns=(1, 1))
+    assert run()["net0"] == "skipped-up-to-date"
+    # new content in one input redoes only that one
+    changed = synthetic_points(60, seed=1)
+    changed.loc[3, "level_m"] += 0.5
+    (data / "net1.gpkg").unlink()
+    write_gpkg(data / "net1.gpkg", {"wells": changed})
+    assert run() == {"net0": "skipped-up-to-date", "net1": "done", "net2": "skipped-up-to-date"}
+    # an option change redoes all
+    assert run(k=8) == {"net0": "done", "net1": "done", "net2": "done"}
+    assert set(run(k=8).values()) == {"skipped-up-to-date"}
+    # a deleted output is made again; --force redoes everything
+    (out_dir / "net2.gpkg").unlink()
+    assert run(k=8)["net2"] == "done"
+    plan = batch.plan_from_args([str(data)], out_dir=out_dir, options={**FAST, "k": 8})
+    assert {o.outcome for o in batch.run_batch(plan, force=True).outcomes} == {"done"}
+
+
+def test_jobs_2_writes_identical_attribute_tables_to_jobs_1(tmp_path):
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(3):
+        write_gpkg(data / f"net{seed}.gpkg", {"wells": synthetic_points(80, seed=seed)})
+    network = np.repeat(np.array(["east", "west"], dtype=object), 50)
+    write_gpkg(data / "regional.gpkg", {"wells": synthetic_points(100, seed=7, extra={"network": network})})
+    results = {}
+    for jobs in (1, 2):
+        plan = batch.plan_from_args([str(data)], out_dir=tmp_path / f"jobs{jobs}", options=FAST, jobs=jobs)
+        results[jobs] = batch.run_batch(plan)
+        assert results[jobs].exit_code == 0
+    names = sorted(p.name for p in (tmp_path / "jobs1").glob("*.gpkg") if p.name != "batch-index.gpkg")
+    assert names == sorted(p.name for p in (tmp_path / "jobs2").glob("*.gpkg") if p.name != "batch-index.gpkg")
+    assert len(names) == 4
+    for name in names:
+        one = pyogrio.read_dataframe(tmp_path / "jobs1" / name, layer="screened", read_geometry=False)
+        two = pyogrio.read_dataframe(tmp_path / "jobs2" / name, layer="screened", read_geometry=False)
+        # byte-identical: the same CSV text, every float written with full precision
+        assert one.to_csv(float_format="%.17g").encode() == two.to_csv(float_format="%.17g").encode()
+    fingerprints = [[o.fingerprint for o in results[j].outcomes] for j in (1, 2)]
+    assert fingerprints[0] == fingerprints[1]
+
+
+def test_cli_plan_error_exit_2_and_direct_form(tmp_path, capsys):
+    from pointsift.cli import main
+
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points(60, seed=3)})
+    plan = tmp_path / "plan.toml"
+    plan.write_text('[defaults]\nvalue = "level_m"\ngraph = "ring"\n[[input]]\npath = "a.gpkg"\n')
+    assert main(["batch", str(plan), "--out-dir", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert "plan.toml line 3, [defaults], key 'graph': graph 'ring' is not known; choose one of knn, band." in err
+    assert not (tmp_path / "o").exists()  # nothing was run
+    assert main(["batch", str(tmp_path / "a.gpkg"), "--out-dir", str(tmp_path / "o")]) == 2
+    assert "--value COLUMN" in capsys.readouterr().err
+    code = main(["-q", "batch", str(tmp_path / "a.gpkg"), "--value", "level_m", "--permutations", "99",
+                 "--out-dir", str(tmp_path / "o")])
+    assert code == 0
+    assert capsys.readouterr().err == ""
+    record = (tmp_path / "o" / "a.batch.json").read_text()
+    assert '"permutations": 99' in record
+    assert hashlib.sha256((tmp_path / "a.gpkg").read_bytes()).hexdigest() in record  # reference: hashlib
