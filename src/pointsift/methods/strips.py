@@ -599,7 +599,7 @@ def _direction_words(direction: float) -> str:
     return f"strips along azimuth {direction:g}\N{DEGREE SIGN}, numbered towards {(direction - 90) % 180:g}\N{DEGREE SIGN}"
 
 
-def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value"):
+def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value", flag_u: float = FLAG_U):
     """Strip means and medians along each strip family (one panel per direction).
 
     Parameters
@@ -608,6 +608,8 @@ def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value"):
         ``StripResult.table``.
     label : str
         Axis label for the values (the value column name).
+    flag_u : float
+        The ``|u|`` threshold the table was flagged with (legend text).
 
     Returns
     -------
@@ -637,7 +639,7 @@ def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value"):
         flagged = part["flagged"].to_numpy()
         if flagged.any():
             ax.scatter(pos[flagged], part["mean"][flagged], facecolor="none", edgecolor="#c0392b", s=90, lw=1.5,
-                       zorder=4, label="|u| > %g" % 3.0)
+                       zorder=4, label=f"|u| > {flag_u:g}")
         ax.set_title(f"{_direction_words(float(direction))} (width {float(part['width'].iloc[0]):g} m)", fontsize=10)
         ax.set_xlabel("across position of strip centre (km from first strip edge)")
         ax.set_ylabel(label)
