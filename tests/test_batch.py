@@ -520,3 +520,50 @@ def test_cli_plan_error_exit_2_and_direct_form(tmp_path, capsys):
     record = (tmp_path / "o" / "a.batch.json").read_text()
     assert '"permutations": 99' in record
     assert hashlib.sha256((tmp_path / "a.gpkg").read_bytes()).hexdigest() in record  # reference: hashlib
+
+
+@pytest.mark.parametrize(
+    "jobs, presses",
+    [(1, 1), pytest.param(1, 2, marks=pytest.mark.slow), pytest.param(2, 1, marks=pytest.mark.slow),
+     pytest.param(2, 2, marks=pytest.mark.slow)],
+)
+def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs, presses):
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(12):
+        write_gpkg(data / f"net{seed:02d}.gpkg", {"wells": synthetic_points(400, seed=seed)})
+    out_dir = tmp_path / "out"
+    command = [sys.executable, "-m", "pointsift.cli", "batch", str(data), "--value", "level_m", "--out-dir",
+               str(out_dir), "--jobs", str(jobs)]
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 120
+    while not list(out_dir.glob("*.batch.json")) and time.monotonic() < deadline and process.poll() is None:
+        time.sleep(0.02)
+    for _ in range(presses):
+        process.send_signal(signal.SIGINT)
+        time.sleep(0.05)
+    stdout, stderr = process.communicate(timeout=120)
+    assert process.returncode == batch.EXIT_INTERRUPTED == 130, stderr
+    index = read_index(out_dir)
+    outcomes = index["outcome"]
+    assert (outcomes == "done").sum() >= 1 and (outcomes == "not-run").sum() >= 1
+    assert set(outcomes) <= {"done", "not-run"}
+    for unit in index.index[outcomes == "done"]:
+        assert len(pyogrio.read_dataframe(out_dir / f"{unit}.gpkg", layer="screened")) == 400
+    for unit in index.index[outcomes == "not-run"]:
+        assert not (out_dir / f"{unit}.gpkg").exists()
+    leftovers = [p.name for p in out_dir.iterdir()
+                 if not (p.name.endswith(".gpkg") or p.name.endswith(".batch.json") or p.name == "batch-index.csv")]
+    assert leftovers == []
+    assert "stopped by Ctrl-C" in stderr
+    # a rerun finishes the rest and redoes nothing
+    rerun = subprocess.run(command, capture_output=True, text=True, timeout=300)
+    assert rerun.returncode == 0, rerun.stderr
+    again = read_index(out_dir)["outcome"]
+    assert (again[outcomes == "done"] == "skipped-up-to-date").all()
+    assert (again[outcomes == "not-run"] == "done").all()
