@@ -203,14 +203,23 @@ def build_graph(
     extra = int(group_sizes.max()) + 2  # twins to skip, plus margin for ties at the cut
     query_width = min(m, width + extra)
     tree = cKDTree(xy[rows])
-    d, j = _sorted_query(tree, xy[rows], query_width, workers)
-    j_global = np.where(j >= 0, rows[np.where(j >= 0, j, 0)], -1)
-    own = rows[:, None]
-    own_group = coincident[rows][:, None]
-    twin = (own_group >= 0) & (coincident[np.where(j_global >= 0, j_global, 0)] == own_group)
-    keep = (j_global >= 0) & (j_global != own) & ~twin & (d <= limit)
-    order = np.argsort(~keep, axis=1, kind="stable")[:, :width]
-    kept = np.take_along_axis(keep, order, axis=1)
-    indices[rows, : order.shape[1]] = np.where(kept, np.take_along_axis(j_global, order, axis=1), -1)
-    distances[rows, : order.shape[1]] = np.where(kept, np.take_along_axis(d, order, axis=1), np.inf)
+    todo = rows
+    while todo.size:
+        d, j = _sorted_query(tree, xy[todo], query_width, workers)
+        j_global = np.where(j >= 0, rows[np.where(j >= 0, j, 0)], -1)
+        own = todo[:, None]
+        own_group = coincident[todo][:, None]
+        twin = (own_group >= 0) & (coincident[np.where(j_global >= 0, j_global, 0)] == own_group)
+        keep = (j_global >= 0) & (j_global != own) & ~twin & (d <= limit)
+        order = np.argsort(~keep, axis=1, kind="stable")[:, :width]
+        kept = np.take_along_axis(keep, order, axis=1)
+        indices[todo, : order.shape[1]] = np.where(kept, np.take_along_axis(j_global, order, axis=1), -1)
+        distances[todo, : order.shape[1]] = np.where(kept, np.take_along_axis(d, order, axis=1), np.inf)
+        if query_width >= m:
+            break
+        # points tied with the last kept neighbour may lie beyond what the tree
+        # returned (it breaks ties arbitrarily): ask again, wider, for those rows
+        last = distances[todo, width - 1]
+        todo = todo[np.isfinite(last) & (d[:, -1] <= last)]
+        query_width = min(m, 2 * query_width)
     return NeighbourGraph(indices, distances, kind, limit)
