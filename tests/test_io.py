@@ -1,0 +1,217 @@
+"""Reading point layers and atomic GeoPackage writing.
+
+Inputs are checked byte-for-byte (hashlib) before and after every read and
+every failed write; written files are read back with sqlite3 and pyogrio.
+"""
+
+import hashlib
+import os
+import sqlite3
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+from conftest import build_wells, fingerprint, leftovers, write_points
+
+from pointsift import io as psio
+from pointsift.errors import InputError, OutputError
+
+
+# --- reading -----------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("suffix", [".gpkg", ".shp", ".parquet"])
+def test_read_spatial_formats_keeps_rows_columns_and_crs(tmp_path, suffix):
+    wells = build_wells(40, seed=2)
+    path = write_points(wells, tmp_path / f"wells{suffix}")
+    before = fingerprint(path)
+    gdf, source = psio.read_points(path)
+    assert fingerprint(path) == before  # reading never touches the input
+    # Reference: the layer as built in memory (row count, order, values, CRS).
+    assert len(gdf) == 40
+    assert gdf["well_id"].tolist() == wells["well_id"].tolist()
+    np.testing.assert_array_equal(gdf["level_m"].to_numpy(), wells["level_m"].to_numpy())
+    np.testing.assert_array_equal(gdf.geometry.x.to_numpy(), wells.geometry.x.to_numpy())
+    assert gdf.crs.equals(wells.crs)
+    # SHA-256 of the file (and a shapefile's side files) vs hashlib
+    if suffix == ".shp":
+        parts = sorted(p for p in tmp_path.iterdir() if p.stem == "wells" and p.suffix in {".shp", ".shx", ".dbf", ".prj", ".cpg"})
+        digest = hashlib.sha256()
+        for p in parts:
+            digest.update(p.read_bytes())
+        assert source.sha256 == digest.hexdigest()
+    else:
+        assert source.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_several_layers_without_layer_lists_them(tmp_path):
+    path = tmp_path / "two.gpkg"
+    write_points(build_wells(20, seed=3), path, layer="spring_2026")
+    write_points(build_wells(20, seed=4), path, layer="autumn_2026")
+    before = fingerprint(path)
+    # Issue 2: several layers and no --layer -> error listing them.
+    with pytest.raises(InputError, match=r"holds 2 layers: spring_2026, autumn_2026\. Choose one with --layer NAME"):
+        psio.read_points(path)
+    gdf, source = psio.read_points(path, layer="autumn_2026")
+    assert len(gdf) == 20 and source.layer == "autumn_2026"
+    assert fingerprint(path) == before
+
+
+def test_unknown_layer_lists_the_layers_present(tmp_path):
+    path = write_points(build_wells(20, seed=3), tmp_path / "one.gpkg", layer="wells")
+    before = fingerprint(path)
+    with pytest.raises(InputError, match=r"has no layer 'welsl'\. Layers present: wells"):
+        psio.read_points(path, layer="welsl")
+    assert fingerprint(path) == before
+
+
+@pytest.mark.parametrize(
+    "names",
+    [("x", "y"), ("lon", "lat"), ("Longitude", "Latitude"), ("easting", "northing"), ("X_COORD", "Y_COORD")],
+)
+def test_csv_coordinate_columns_are_detected(tmp_path, names):
+    wells = build_wells(30, seed=5)
+    path = write_points(wells, tmp_path / "wells.csv", xy_names=names)
+    before = fingerprint(path)
+    gdf, source = psio.read_points(path, crs="EPSG:32633")
+    assert source.coordinate_columns == names
+    # Reference: pandas.read_csv of the same file.
+    table = pd.read_csv(path)
+    assert list(gdf.columns[:-1]) == list(table.columns)
+    np.testing.assert_array_equal(gdf.geometry.x.to_numpy(), table[names[0]].to_numpy())
+    np.testing.assert_array_equal(gdf.geometry.y.to_numpy(), table[names[1]].to_numpy())
+    assert fingerprint(path) == before
+
+
+def test_csv_explicit_columns_and_errors(tmp_path):
+    wells = build_wells(10, seed=6)
+    path = write_points(wells, tmp_path / "odd.csv", xy_names=("e_utm", "n_utm"))
+    with pytest.raises(InputError, match=r"no recognisable coordinate columns .* --x COLUMN --y COLUMN\. Columns present: .*e_utm, n_utm"):
+        psio.read_points(path)
+    with pytest.raises(InputError, match=r"Give both --x and --y"):
+        psio.read_points(path, x="e_utm")
+    with pytest.raises(InputError, match=r"has no column 'n_ut'\. Columns present:"):
+        psio.read_points(path, x="e_utm", y="n_ut")
+    gdf, _ = psio.read_points(path, x="e_utm", y="n_utm")
+    assert len(gdf) == 10 and gdf.crs is None
+
+
+def test_csv_rows_without_coordinates_are_kept_with_no_geometry(tmp_path):
+    path = tmp_path / "gaps.csv"
+    path.write_text("id,x,y,level\na,1,2,3.5\nb,,2,4.0\nc,5,6,dry\n")
+    gdf, _ = psio.read_points(path)
+    assert len(gdf) == 3
+    assert gdf.geometry.isna().tolist() == [False, True, False]
+    assert gdf["level"].tolist() == ["3.5", "4.0", "dry"]
+
+
+@pytest.mark.parametrize("make, message", [
+    (lambda p: p, r"does not exist"),
+    (lambda p: (p.mkdir(), p)[1], r"is a folder"),
+])
+def test_missing_input_or_folder(tmp_path, make, message):
+    target = make(tmp_path / "nothing.gpkg")
+    with pytest.raises(InputError, match=message):
+        psio.read_points(target)
+
+
+def test_corrupt_file_is_an_input_error(tmp_path):
+    path = tmp_path / "broken.gpkg"
+    path.write_bytes(b"not a geopackage at all")
+    with pytest.raises(InputError, match=r"Cannot open .*broken\.gpkg"):
+        psio.read_points(path)
+    assert path.read_bytes() == b"not a geopackage at all"
+
+
+def test_file_sha256_matches_hashlib(tmp_path):
+    path = tmp_path / "blob.bin"
+    path.write_bytes(os.urandom(3 << 20))  # more than one read block
+    assert psio.file_sha256(path) == hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+# --- writing -----------------------------------------------------------------------------
+
+
+def _layers(n=25):
+    wells = build_wells(n, seed=7)
+    return {"screened": wells, "run_info": pd.DataFrame({"key": ["a", "b"], "value": ["1", "two"]})}
+
+
+def test_write_geopackage_reads_back_with_sqlite_and_pyogrio(tmp_path):
+    layers = _layers()
+    out = psio.write_geopackage(tmp_path / "out.gpkg", layers)
+    # Reference: sqlite3's own integrity check of the GeoPackage (an SQLite database).
+    with sqlite3.connect(out) as db:
+        assert db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        names = {row[0] for row in db.execute("SELECT table_name FROM gpkg_contents")}
+        assert names == {"screened", "run_info"}
+        assert db.execute("SELECT key, value FROM run_info ORDER BY fid").fetchall() == [("a", "1"), ("b", "two")]
+    # Reference: pyogrio/GDAL reading the layer back.
+    back = pyogrio.read_dataframe(out, layer="screened")
+    wells = layers["screened"]
+    assert back.crs.equals(wells.crs)
+    assert list(back.columns) == list(wells.columns)
+    for column in wells.columns.drop("geometry"):
+        assert back[column].tolist() == wells[column].tolist()
+    assert back.geometry.geom_equals(wells.geometry).all()
+    assert leftovers(tmp_path) == []
+
+
+def test_existing_output_needs_overwrite_and_stays_untouched(tmp_path):
+    out = tmp_path / "out.gpkg"
+    out.write_bytes(b"precious earlier result")
+    with pytest.raises(OutputError, match=r"exists\. Pass --overwrite to replace it"):
+        psio.write_geopackage(out, _layers())
+    assert out.read_bytes() == b"precious earlier result"
+    psio.write_geopackage(out, _layers(), overwrite=True)
+    assert len(pyogrio.read_dataframe(out, layer="screened")) == 25
+
+
+def test_output_equal_to_input_is_refused(tmp_path, wells_gpkg):
+    before = fingerprint(wells_gpkg)
+    # also through another spelling of the same path
+    other_spelling = tmp_path / "." / wells_gpkg.name
+    for target in (wells_gpkg, other_spelling):
+        with pytest.raises(OutputError, match=r"is the input file; pointsift never writes to its input"):
+            psio.write_geopackage(target, _layers(), overwrite=True, protect=(str(wells_gpkg),))
+    assert fingerprint(wells_gpkg) == before
+
+
+@pytest.mark.parametrize("name, message", [("out.shp", r"must be a GeoPackage file ending in \.gpkg"), ("no_such_dir/out.gpkg", r"does not exist\. Create it first")])
+def test_bad_output_paths(tmp_path, name, message):
+    with pytest.raises(OutputError, match=message):
+        psio.write_geopackage(tmp_path / name, _layers())
+
+
+@pytest.mark.parametrize("existing", [False, True])
+def test_failure_midway_leaves_no_partial_output(tmp_path, monkeypatch, existing):
+    out = tmp_path / "out.gpkg"
+    if existing:
+        out.write_bytes(b"earlier result")
+    real = pyogrio.write_dataframe
+    calls = []
+
+    def fail_on_second_layer(frame, path, *args, **kwargs):
+        calls.append(kwargs.get("layer"))
+        if len(calls) == 2:
+            raise RuntimeError("disk full (simulated)")
+        return real(frame, path, *args, **kwargs)
+
+    monkeypatch.setattr(pyogrio, "write_dataframe", fail_on_second_layer)
+    with pytest.raises(RuntimeError, match="disk full"):
+        psio.write_geopackage(out, _layers(), overwrite=True)
+    assert calls == ["screened", "run_info"]  # the first layer really was written
+    assert leftovers(tmp_path) == []
+    if existing:
+        assert out.read_bytes() == b"earlier result"
+    else:
+        assert not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == (["out.gpkg"] if existing else [])
+
+
+def test_run_info_table_is_key_value_text():
+    table = psio.run_info_table({"a": "text", "b": {"y": 1, "x": [1.5, None]}, "c": 3})
+    assert table.columns.tolist() == ["key", "value"]
+    assert table["value"].tolist() == ["text", '{"x": [1.5, null], "y": 1}', "3"]
