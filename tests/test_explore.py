@@ -1,0 +1,169 @@
+"""The 'describe' command and explore.describe: terminal summary and the GeoPackage it writes.
+
+Outputs are read back with pyogrio (an independent reader) and checked against
+published figures (meuse zinc) and pandas recomputations.
+"""
+
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+import shapely
+from click.testing import CliRunner
+
+from pointsift.cli import cli, main
+from pointsift.config import ScreenConfig
+from pointsift.explore import describe, description_layers
+from pointsift.prepare import prepare
+
+from conftest import build_wells, write_points
+
+
+@pytest.fixture
+def meuse_gpkg(tmp_path):
+    skgstat = pytest.importorskip("skgstat")
+    coords, zinc = skgstat.data.meuse(variable="zinc")["sample"]
+    layer = gpd.GeoDataFrame(
+        {"sample": [f"M{i:03d}" for i in range(len(zinc))], "zinc": np.asarray(zinc, dtype=float).ravel()},
+        geometry=gpd.points_from_xy(coords[:, 0], coords[:, 1]),
+        crs="EPSG:28992",  # Dutch RD New, the CRS of the meuse coordinates (R sp documentation)
+    )
+    return write_points(layer, tmp_path / "meuse.gpkg", layer="meuse")
+
+
+def test_describe_meuse_prints_and_writes_the_published_summary(meuse_gpkg, tmp_path):
+    out = tmp_path / "described.gpkg"
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--id", "sample", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "Described 155 rows of 'zinc'" in result.output
+    assert "(n - 1 denominator)" in result.output and "adjusted Fisher-Pearson G1" in result.output
+    assert "Stem-and-leaf display of 155 values" in result.output
+    assert "west-east strips, numbered south to north" in result.output
+
+    layers = dict(pyogrio.list_layers(out))
+    assert set(layers) >= {"strips", "points", "summary", "stem_leaf", "unscreened", "trend", "run_info"}
+    assert layers["strips"] == "Polygon" and layers["points"] == "Point"
+    summary = pyogrio.read_dataframe(out, layer="summary").set_index("figure")["all"]
+    # Reference: R sf documentation, summary(meuse$zinc): 113 / 198 / 326 / 469.7 / 674.5 / 1839.
+    assert (summary["min"], summary["p25"], summary["median"], summary["p75"], summary["max"]) == (
+        113.0, 198.0, 326.0, 674.5, 1839.0,
+    )
+    assert round(summary["mean"], 1) == 469.7
+    # Reference: pandas' sample sd (ddof=1) of the same values.
+    zinc = gpd.read_file(meuse_gpkg)["zinc"]
+    assert summary["sd"] == pytest.approx(zinc.std(), rel=1e-12)
+
+
+def test_strips_layer_agrees_with_the_points_layer(meuse_gpkg, tmp_path):
+    out = tmp_path / "described.gpkg"
+    assert main(["-q", "describe", str(meuse_gpkg), "--value", "zinc", "--strip-width", "400m", "--out", str(out)]) == 0
+    strips = pyogrio.read_dataframe(out, layer="strips")
+    points = pyogrio.read_dataframe(out, layer="points")
+    assert strips.crs.to_epsg() == 28992
+    assert sorted(strips["direction"].unique()) == [0.0, 90.0]
+    assert (strips["width"] == 400.0).all()
+    for direction, column in ((90.0, "strip_90"), (0.0, "strip_0")):
+        family = strips[strips["direction"] == direction].set_index("strip")
+        # Every usable point is in exactly one strip of the family.
+        assert (points[column] >= 0).all()
+        assert family["n"].sum() == len(points)
+        # Recomputed from the points with pandas: n, mean, median per strip.
+        grouped = points.groupby(column)["zinc"].agg(["size", "mean", "median"])
+        np.testing.assert_array_equal(family.loc[grouped.index, "n"], grouped["size"])
+        np.testing.assert_allclose(family.loc[grouped.index, "mean"], grouped["mean"], rtol=1e-12)
+        np.testing.assert_allclose(family.loc[grouped.index, "median"], grouped["median"], rtol=1e-12)
+        # Each point lies in its strip's footprint (reference: shapely covers).
+        footprints = family.loc[points[column], "geometry"].to_numpy()
+        assert shapely.covers(footprints, points.geometry.to_numpy()).all()
+        # Too-small strips have an empty u and are not flagged.
+        small = family[family["n"] < 5]
+        assert small["u"].isna().all() and not small["flagged"].any()
+
+
+def test_unscreened_rows_are_counted_and_trend_reported(tmp_path):
+    wells = build_wells(120, seed=3)
+    wells.loc[[4, 9], "level_m"] = -9999.0
+    path = write_points(wells, tmp_path / "wells.gpkg")
+    out = tmp_path / "d.gpkg"
+    result = CliRunner().invoke(
+        cli, ["describe", str(path), "--value", "level_m", "--detrend", "surface1", "--out", str(out)]
+    )
+    assert result.exit_code == 0, result.output
+    assert "118 used, 2 unscreened" in result.output
+    unscreened = pyogrio.read_dataframe(out, layer="unscreened")
+    assert unscreened["rows"].sum() == 2
+    trend = pyogrio.read_dataframe(out, layer="trend").set_index("key")["value"]
+    assert trend["method"].startswith("robust trend surface, order 1")
+    # The invented field is a plane plus small noise (conftest): the plane explains nearly all variance.
+    assert float(trend["variance_explained"]) > 0.99
+    points = pyogrio.read_dataframe(out, layer="points")
+    assert points["trend_residual"].iloc[[4, 9]].isna().all()
+    summary = pyogrio.read_dataframe(out, layer="summary").set_index("figure")["all"]
+    # Reference: pandas on the usable values.
+    kept = wells["level_m"].drop(index=[4, 9])
+    assert summary["n"] == 118 and summary["mean"] == pytest.approx(kept.mean(), rel=1e-12)
+
+
+def test_with_screen_summarises_without_suspects(tmp_path):
+    wells = build_wells(150, seed=5)
+    wells.loc[17, "level_m"] += 25.0  # a planted wrong value (25 m off a 0.2 m-noise plane)
+    path = write_points(wells, tmp_path / "wells.gpkg")
+    out = tmp_path / "d.gpkg"
+    result = CliRunner().invoke(
+        cli,
+        ["describe", str(path), "--value", "level_m", "--with-screen", "--permutations", "99", "--out", str(out)],
+    )
+    assert result.exit_code == 0, result.output
+    assert "Without the" in result.output
+    table = pyogrio.read_dataframe(out, layer="summary").set_index("figure")
+    dropped = int(table.loc["n", "all"] - table.loc["n", "without_suspects"])
+    assert dropped >= 1
+    # The planted value is among the dropped ones: dropping it alone lowers the mean by 25 / 150 = 0.17 m,
+    # and the mean without suspects matches pandas' mean without row 17 to well within that.
+    assert table.loc["mean", "without_suspects"] < table.loc["mean", "all"]
+    assert table.loc["mean", "without_suspects"] == pytest.approx(
+        wells["level_m"].drop(index=17).mean(), abs=0.03
+    )
+
+
+def test_figures_are_written_as_png(meuse_gpkg, tmp_path):
+    folder = tmp_path / "figs"
+    folder.mkdir()
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--figures", str(folder)])
+    assert result.exit_code == 0, result.output
+    for name in ("histogram.png", "strips.png"):
+        data = (folder / name).read_bytes()
+        # PNG signature (common practice: the 8-byte magic number of the PNG specification).
+        assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 5000
+
+
+def test_usage_and_data_errors_map_to_exit_codes(meuse_gpkg, tmp_path, capsys):
+    assert main(["describe", str(tmp_path / "missing.gpkg"), "--value", "zinc"]) == 1
+    assert "does not exist" in capsys.readouterr().err
+    assert main(["describe", str(meuse_gpkg), "--value", "zinc", "--stem-unit", "3"]) == 2
+    assert "stem_unit must be a power of ten" in capsys.readouterr().err
+    assert main(["describe", str(meuse_gpkg), "--value", "zinc", "--strips", "east"]) == 2
+    assert main(["describe", str(meuse_gpkg), "--value", "nickel"]) == 1
+    assert "nickel" in capsys.readouterr().err
+    out = tmp_path / "once.gpkg"
+    assert main(["-q", "describe", str(meuse_gpkg), "--value", "zinc", "--out", str(out)]) == 0
+    assert main(["-q", "describe", str(meuse_gpkg), "--value", "zinc", "--out", str(out)]) == 1
+    assert "--overwrite" in capsys.readouterr().err
+    assert main(["-q", "describe", str(meuse_gpkg), "--value", "zinc", "--out", str(meuse_gpkg), "--overwrite"]) == 1
+
+
+def test_describe_function_on_a_prepared_layer():
+    wells = build_wells(80, seed=9)
+    prepared = prepare(wells, ScreenConfig(value="level_m"))
+    description = describe(prepared, directions=(45,), trend="polish", figures=True)
+    assert set(description.strips.table["direction"]) == {45.0}
+    assert description.trend_info["method"].startswith("median polish on")
+    assert set(description.figures) == {"histogram", "strip_profiles"}
+    layers = description_layers(description)
+    assert isinstance(layers["strips"], gpd.GeoDataFrame) and layers["strips"].crs == prepared.work_crs
+    assert list(layers["points"].columns[-3:]) == ["strip_45", "trend_fitted", "trend_residual"]
+    none = describe(prepared, trend="none")
+    assert none.trend is None and none.trend_info == {"method": "none"}
