@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import re
 import textwrap
 import warnings
 import tomllib
@@ -414,6 +415,10 @@ def test_batch_over_a_programme_with_bad_inputs(tmp_path, capsys):
     }
     assert "corrupt.gpkg" in index.loc["corrupt", "message"]
     assert "has no CRS" in index.loc["no_crs", "message"]
+    # the message points at the plan entry to fix, and says the flag it mentions is a plan key there
+    entry_line = line_of(plan.read_text(), "[[input]]")
+    assert f"(plan entry: plan.toml line {entry_line}, [[input]] #1; in the plan, --crs is crs = ..." in index.loc[
+        "no_crs", "message"]
     assert "no column 'level_m'" in index.loc["no_value", "message"] and "head_m" in index.loc["no_value", "message"]
     assert "9 units: 6 done, 3 failed" in captured.err
     # each output read back with pyogrio: every input row is there, with a status word
@@ -567,3 +572,47 @@ def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs
     again = read_index(out_dir)["outcome"]
     assert (again[outcomes == "done"] == "skipped-up-to-date").all()
     assert (again[outcomes == "not-run"] == "done").all()
+
+
+class _Terminal:
+    """A text stream that says it is a terminal."""
+
+    def __init__(self) -> None:
+        import io
+
+        self.buffer = io.StringIO()
+
+    def write(self, text: str) -> int:
+        return self.buffer.write(text)
+
+    def flush(self) -> None:
+        pass
+
+    def isatty(self) -> bool:
+        return True
+
+
+def test_progress_bar_on_a_terminal_lines_otherwise_silence_with_quiet(tmp_path):
+    import io
+
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(2):
+        write_gpkg(data / f"net{seed}.gpkg", {"wells": synthetic_points(50, seed=seed)})
+    (data / "broken.csv").write_text("well,level_m\nW1,3.0\n")  # no coordinate columns
+    assert isinstance(batch.make_progress(quiet=True, stream=_Terminal()), batch.SilentProgress)
+    assert type(batch.make_progress(stream=io.StringIO())) is batch.LineProgress
+    terminal = _Terminal()
+    bar = batch.make_progress(stream=terminal)
+    assert isinstance(bar, batch.RichProgress)
+    plan = batch.plan_from_args([str(data)], out_dir=tmp_path / "a", options=FAST)
+    batch.run_batch(plan, progress=bar)
+    shown = re.sub(r"\x1b\[[0-9;?]*[A-Za-z]", "", terminal.buffer.getvalue())  # without terminal colour codes
+    assert "3/3" in shown and "2 done, 0 up to date, 1 failed" in shown
+    assert "failed broken: " in shown and "coordinate columns" in shown
+    lines = io.StringIO()
+    batch.run_batch(plan, progress=batch.LineProgress(lines))
+    text = lines.getvalue().splitlines()
+    assert text[0] == "pointsift batch: 3 units"
+    assert text[1].startswith("[1/3] failed broken: ")
+    assert text[2].startswith("[2/3] skipped-up-to-date net0 (")

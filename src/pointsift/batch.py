@@ -784,6 +784,8 @@ class Unit:
     problem : str or None
         Set when the unit failed already during expansion (unreadable file,
         missing layer or column); it is then recorded as failed.
+    origin : str
+        The plan entry it came from (e.g. ``"plan.toml line 12, [[input]] #2"``).
     """
 
     name: str
@@ -797,6 +799,7 @@ class Unit:
     y: str | None = None
     report: bool = False
     problem: str | None = None
+    origin: str = ""
 
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._\-]+")
@@ -907,7 +910,7 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
         for path in files:
             base_fields = dict(
                 path=path, display=_display(path), config=spec.config, by=spec.by, x=spec.x, y=spec.y,
-                report=spec.report,
+                report=spec.report, origin=spec.where,
             )
             layers: list[str | None] = [None]
             layer_in_name = False
@@ -1001,6 +1004,20 @@ def _unique_names(drafts: list[tuple[tuple[str, ...], dict]]) -> list[str]:
                     digest = hashlib.sha1(_identity(drafts[i][1]).encode()).hexdigest()[:8]
                     names[i] = f"{names[i]}-{digest}"
     return names
+
+
+_FLAG_TO_KEY = {"neighbours": "k", "no-data": "sentinels", "layer": "layers", "duplicate-tolerance":
+                "coincident_value_tolerance"}
+
+
+def _with_origin(message: str, unit: Unit) -> str:
+    """Point a data problem at the plan entry to fix; name plan keys for the flags a message mentions."""
+    if not unit.origin or unit.origin.startswith("command line"):
+        return message
+    flags = sorted(set(re.findall(r"--([a-z][a-z\-]*)", message)))
+    keys = [f"--{flag} is {_FLAG_TO_KEY.get(flag, flag.replace('-', '_'))} = ..." for flag in flags]
+    hint = f"; in the plan, {', '.join(keys)}" if keys else ""
+    return f"{message} (plan entry: {unit.origin}{hint})"
 
 
 def _describe(exc: BaseException, path: Path) -> str:
@@ -1269,7 +1286,7 @@ def _screen_unit(task: _Task) -> UnitOutcome:
             if leftover is not None and leftover.exists():
                 leftover.unlink()
         outcome = UnitOutcome(
-            unit=unit, outcome=FAILED, message=_describe(exc, unit.path),
+            unit=unit, outcome=FAILED, message=_with_origin(_describe(exc, unit.path), unit),
             input_sha256=task.input_sha256, fingerprint=task.fingerprint,
         )
     outcome.seconds = time.perf_counter() - started
@@ -1563,7 +1580,7 @@ def run_batch(
                     break
                 tick = time.perf_counter()
                 if unit.problem is not None:
-                    outcomes[number] = UnitOutcome(unit=unit, outcome=FAILED, message=unit.problem,
+                    outcomes[number] = UnitOutcome(unit=unit, outcome=FAILED, message=_with_origin(unit.problem, unit),
                                                    seconds=time.perf_counter() - tick)
                     progress.advance(outcomes[number])
                     continue
