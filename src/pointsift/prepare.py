@@ -141,7 +141,13 @@ def choose_work_crs(lon: np.ndarray, lat: np.ndarray) -> CRS:
     -------
     pyproj.CRS
     """
-    lon_c = float(np.median(lon))
+    lon = np.asarray(lon, dtype=float)
+    # points straddling the antimeridian: take the centre in 0..360, or the
+    # median of -179 and 179 would put it on the far side of the globe
+    shifted = np.mod(lon, 360.0)
+    if np.ptp(shifted) < np.ptp(lon):
+        lon = shifted
+    lon_c = (float(np.median(lon)) + 180.0) % 360.0 - 180.0
     lat_c = float(np.median(lat))
     zone = int(np.floor((lon_c + 180.0) / 6.0)) % 60 + 1
     meridian = -183.0 + 6.0 * zone
