@@ -72,7 +72,11 @@ DEFAULT_PAIR_BUDGET = 20_000_000
 # When the pairs in reach exceed the budget by more than this factor, points
 # are subsampled first: enumerating every pair only to thin it would cost
 # time in proportion to all pairs in reach.
-_POINT_SAMPLING_FACTOR = 8.0
+_POINT_SAMPLING_FACTOR = 2.0
+# Query points used to measure the point spacing of a large set.
+_SPACING_SAMPLE = 200_000
+# Points counted to estimate the pairs in reach of a large set.
+_ESTIMATE_POINTS = 10_000
 # Ordered pairs enumerated per chunk of tail points (bounds memory).
 _CHUNK_PAIRS = 4_000_000
 # Upper quartile of the standard normal: MAD / this (about 1.4826 MAD) and
@@ -100,7 +104,8 @@ class PairSet:
     max_distance : float
         Search radius (pairs with ``distance <= max_distance`` were searched).
     pairs_in_reach : int
-        Number of pairs within the radius before any subsampling.
+        Number of pairs within the radius before any subsampling (estimated
+        from a seeded sample of 10,000 points when far above the budget).
     point_fraction, pair_fraction : float
         Sampling probabilities applied to points, then to pairs (1.0 = none).
     seed : int
@@ -116,6 +121,7 @@ class PairSet:
     point_fraction: float = 1.0
     pair_fraction: float = 1.0
     seed: int = 0
+    pairs_in_reach_estimated: bool = False
 
     @property
     def size(self) -> int:
@@ -133,6 +139,7 @@ class PairSet:
         return {
             "max_distance": float(self.max_distance),
             "pairs_in_reach": int(self.pairs_in_reach),
+            "pairs_in_reach_estimated": bool(self.pairs_in_reach_estimated),
             "pairs_used": self.size,
             "sampled": bool(self.sampled),
             "point_fraction": float(self.point_fraction),
@@ -170,7 +177,7 @@ def find_pairs(
     pair_budget : int
         At most this many pairs are kept. Above it a seeded subsample is
         drawn: uniformly over pairs, after a uniform subsample of points when
-        the pairs in reach exceed the budget more than eightfold.
+        the pairs in reach exceed the budget more than twofold.
     seed : int
         Seed of the subsampling draws.
 
@@ -202,12 +209,11 @@ def find_pairs(
     pts = xy[rows]
     radius = max_distance * (1.0 + _RADIUS_SLACK)
     tree = cKDTree(pts)
-    # count_neighbors counts ordered pairs including each point with itself.
-    in_reach = int((int(tree.count_neighbors(tree, radius)) - rows.size) // 2)
+    rng = np.random.default_rng(seed)
+    in_reach, estimated = _pairs_in_reach(tree, pts, radius, pair_budget, rng)
     if in_reach == 0:
         return PairSet(empty.tail, empty.head, empty.distance, empty.azimuth, max_distance, 0, 1.0, 1.0, int(seed))
 
-    rng = np.random.default_rng(seed)
     point_fraction = 1.0
     sub = np.arange(rows.size)
     sub_in_reach = in_reach
@@ -216,14 +222,22 @@ def find_pairs(
         sub = np.flatnonzero(rng.random(rows.size) < point_fraction)
         if sub.size >= 2:
             tree = cKDTree(pts[sub])
-            sub_in_reach = int((int(tree.count_neighbors(tree, radius)) - sub.size) // 2)
+            sub_in_reach = _count_pairs(tree, radius)
         else:
             sub_in_reach = 0
     pair_fraction = 1.0 if sub_in_reach <= pair_budget else pair_budget / sub_in_reach
     sub_pts = pts[sub]
 
     tails, heads = [], []
-    if sub.size >= 2 and sub_in_reach > 0:
+    if sub.size >= 2 and sub_in_reach > 0 and pair_fraction == 1.0:
+        # Within budget: one ball query over the whole tree.
+        found = tree.query_pairs(radius, output_type="ndarray").astype(np.int64, copy=False)
+        a, b = found[:, 0], found[:, 1]
+        d = np.hypot(sub_pts[b, 0] - sub_pts[a, 0], sub_pts[b, 1] - sub_pts[a, 1])
+        tails.append(a[d <= max_distance])
+        heads.append(b[d <= max_distance])
+    elif sub.size >= 2 and sub_in_reach > 0:
+        # Thinning: enumerate chunk by chunk so memory stays bounded.
         order = np.argsort(sub_pts[:, 0], kind="stable")
         chunk = max(1, int(_CHUNK_PAIRS * sub.size / max(2 * sub_in_reach, 1)))
         for start in range(0, sub.size, chunk):
@@ -260,11 +274,34 @@ def find_pairs(
     with np.errstate(invalid="ignore"):
         azimuth = np.mod(np.degrees(np.arctan2(dx, dy)), 180.0)
     azimuth[distance == 0] = np.nan
-    order = np.lexsort((head, tail))
+    order = np.argsort(tail * np.int64(xy.shape[0]) + head, kind="stable")
     return PairSet(
         tail[order], head[order], distance[order], azimuth[order],
-        max_distance, in_reach, point_fraction, pair_fraction, int(seed),
+        max_distance, in_reach, point_fraction, pair_fraction, int(seed), estimated,
     )
+
+
+def _count_pairs(tree: cKDTree, radius: float) -> int:
+    # count_neighbors counts ordered pairs, each point with itself included.
+    return int((int(tree.count_neighbors(tree, radius)) - tree.n) // 2)
+
+
+def _pairs_in_reach(tree: cKDTree, pts: np.ndarray, radius: float, budget: int, rng) -> tuple[int, bool]:
+    """Pairs within the radius: counted, or estimated from a point sample when they are far too many.
+
+    Counting costs time in proportion to the pairs, so for many points a
+    seeded sample of ``_ESTIMATE_POINTS`` points is counted first and scaled
+    by ``n (n - 1) / (m (m - 1))``; only when that estimate is within reach of
+    the budget is the exact count made.
+    """
+    n = pts.shape[0]
+    if n > 2 * _ESTIMATE_POINTS:
+        pick = rng.choice(n, size=_ESTIMATE_POINTS, replace=False)
+        m = _ESTIMATE_POINTS
+        estimate = _count_pairs(cKDTree(pts[pick]), radius) * (n * (n - 1.0)) / (m * (m - 1.0))
+        if estimate > 4 * _POINT_SAMPLING_FACTOR * budget:
+            return int(round(estimate)), True
+    return _count_pairs(tree, radius), False
 
 
 def axial_difference(azimuth, direction: float) -> np.ndarray:
@@ -290,19 +327,30 @@ def point_spacing(xy) -> float:
     """Typical spacing of the points: the median distance to the nearest distinct point.
 
     Coincident points (distance 0) are skipped so duplicates do not shrink
-    the spacing. Returns NaN when fewer than two distinct points exist.
+    the spacing. Above 200,000 points the median is taken over a fixed
+    (seeded) sample of 200,000 query points, each against all points.
+    Returns NaN when fewer than two distinct points exist.
     """
     xy = _as_xy(xy)
     pts = xy[np.isfinite(xy).all(axis=1)]
     if pts.shape[0] < 2:
         return float("nan")
-    k = min(pts.shape[0], 9)
-    dist, _ = cKDTree(pts).query(pts, k=k)
-    dist = np.where(dist > 0, dist, np.inf)
-    nearest = dist.min(axis=1)
+    tree = cKDTree(pts)
+    query = pts
+    if pts.shape[0] > _SPACING_SAMPLE:
+        query = pts[np.sort(np.random.default_rng(0).choice(pts.shape[0], _SPACING_SAMPLE, replace=False))]
+    dist, _ = tree.query(query, k=2, workers=-1)
+    nearest = dist[:, 1]
+    twins = np.flatnonzero(nearest == 0)
+    if twins.size:
+        # Coincident records: look further for the nearest distinct point.
+        k = min(pts.shape[0], 33)
+        far, _ = tree.query(query[twins], k=k, workers=-1)
+        far = np.where(far > 0, far, np.inf).min(axis=1)
+        nearest = nearest.copy()
+        nearest[twins] = far
     nearest = nearest[np.isfinite(nearest)]
     if nearest.size == 0:
-        # More than eight coincident records everywhere: fall back to unique points.
         uniq = np.unique(pts, axis=0)
         if uniq.shape[0] < 2:
             return float("nan")
@@ -391,8 +439,8 @@ class LagPairScreen:
         stands out (or the pair is not flagged).
     values : ndarray of float
         The values screened (NaN where unusable).
-    ids : ndarray of str
-        Point labels used in the pair table.
+    ids : ndarray of str or None
+        Point labels used in the pair table (None: row numbers).
     directions, angle_tolerance, first_lag, lag_edges, threshold :
         Settings used.
     """
@@ -406,7 +454,7 @@ class LagPairScreen:
     flagged: np.ndarray
     culprit: np.ndarray
     values: np.ndarray
-    ids: np.ndarray
+    ids: np.ndarray | None
     directions: tuple[float, ...]
     angle_tolerance: float
     first_lag: float
@@ -438,12 +486,13 @@ class LagPairScreen:
         tail = self.pairs.tail[sel]
         head = self.pairs.head[sel]
         culprit = self.culprit[sel]
-        culprit_id = np.where(culprit >= 0, self.ids[np.where(culprit >= 0, culprit, 0)], "")
+        ids = self.ids if self.ids is not None else np.arange(self.values.size).astype(str)
+        culprit_id = np.where(culprit >= 0, ids[np.where(culprit >= 0, culprit, 0)], "")
         return pd.DataFrame({
             "tail_row": tail,
             "head_row": head,
-            "tail_id": self.ids[tail].astype(object),
-            "head_id": self.ids[head].astype(object),
+            "tail_id": ids[tail].astype(object),
+            "head_id": ids[head].astype(object),
             "tail_value": self.values[tail],
             "head_value": self.values[head],
             "difference": self.values[head] - self.values[tail],
@@ -556,11 +605,10 @@ def screen_lag_pairs(
     n = xy.shape[0]
     if values.shape != (n,):
         raise InputError(f"values must have one entry per point ({n}), got shape {values.shape}.")
-    if ids is None:
-        ids = np.arange(n).astype(str)
-    ids = np.asarray(ids).astype(str)
-    if ids.shape != (n,):
-        raise InputError(f"ids must have one entry per point ({n}), got shape {ids.shape}.")
+    if ids is not None:
+        ids = np.asarray(ids).astype(str)
+        if ids.shape != (n,):
+            raise InputError(f"ids must have one entry per point ({n}), got shape {ids.shape}.")
     directions = tuple(float(d) % 180.0 for d in directions)
     if not directions:
         raise ConfigError("directions is empty; give at least one azimuth, e.g. (90, 45, 0, 135).")
