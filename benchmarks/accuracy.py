@@ -188,8 +188,9 @@ def run(networks: list[str], seeds: list[int], methods: list[str], options: dict
             import pointsift
 
             screen = pointsift.screen
-        except (ImportError, AttributeError) as error:
-            pointsift_error = f"pointsift.screen is not available yet ({error}); only the baselines ran."
+        except Exception as error:  # missing, or half-written while the pipeline is being built
+            pointsift_error = (f"pointsift.screen is not available yet ({type(error).__name__}: {error}); "
+                               "only the baselines ran.")
             log(pointsift_error)
             methods = [m for m in methods if m != "pointsift"]
     results = {}
