@@ -126,8 +126,8 @@ class ScreenConfig:
     permutations: int = 999
     seed: int = 20261202
     fdr: float = 0.05
-    suspect_z: float = 5.0
-    review_z: float = 3.5
+    suspect_z: float = 4.0
+    review_z: float = 3.0
     detrend: str = "auto"
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 

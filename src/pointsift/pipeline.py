@@ -24,6 +24,7 @@ from .io import SourceInfo
 from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation, local_autocorrelation
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
+from .methods.repairs import likely_slips
 from .prepare import Prepared, prepare
 from .verdict import STATUSES, decide, format_length
 
@@ -238,8 +239,12 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     farthest = np.where(graph.mask, graph.distances, -np.inf).max(axis=1, initial=-np.inf)
     farthest = np.where(np.isfinite(farthest), farthest, np.nan)
 
+    candidates = (reasons == "") & np.isfinite(local.z) & (np.abs(local.z) >= config.review_z)
+    slips = likely_slips(prepared.values, local.expected, local.scale, candidates)
+
     t = time.perf_counter()
     verdict = decide(
+        slips=slips,
         ids=prepared.ids,
         values=prepared.values,
         unscreened_reason=reasons,

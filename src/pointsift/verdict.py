@@ -4,8 +4,10 @@ Statuses
 --------
 ``suspect``
     Very likely a wrong value or location: the standardized local residual
-    reaches ``suspect_z`` and the neighbours do not deviate the same way, or
-    a coincident record contradicts it and the neighbours side with the other.
+    reaches ``suspect_z`` and the neighbours do not deviate the same way; or
+    it reaches ``review_z`` and undoing a common entry mistake (decimal slip,
+    feet/metres, transposed digits, sign) makes it fit; or a coincident
+    record contradicts it and the neighbours side with the other.
 ``review``
     Worth a field check: the residual reaches ``review_z``; or it reaches
     ``suspect_z`` but a good share of the neighbours deviate alike (a
@@ -22,7 +24,8 @@ Score
 -----
 ``screen_score`` is the size of the standardized local residual, halved when
 the neighbours echo the deviation (evidence of a real feature rather than an
-error), and at least ``suspect_z`` for a contradicted coincident record.
+error), and at least ``suspect_z`` for a contradicted coincident record or
+a deviation an entry mistake explains.
 Larger means stronger evidence of an error. Unscreened rows have no score.
 """
 
@@ -66,7 +69,7 @@ def decide(
     coincident: pd.DataFrame,
     config: ScreenConfig,
     supporting: tuple[np.ndarray, ...] = (),
-    echo_share: float = 0.34,
+    slips: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> pd.DataFrame:
     """Status, score and reasons for every row.
 
@@ -91,8 +94,10 @@ def decide(
     supporting : tuple of ndarray of object
         Extra sentences per row ("" for none) from other methods, added to
         the reasons of flagged points.
-    echo_share : float
-        Share of neighbours deviating alike that marks a coherent feature.
+    slips : (ndarray of bool, ndarray of object), optional
+        From :func:`pointsift.methods.repairs.likely_slips`: a common entry
+        mistake, undone, makes the value fit. Raises ``review`` to
+        ``suspect`` for a deviation the neighbours do not share.
 
     Returns
     -------
@@ -104,17 +109,18 @@ def decide(
     unscreened = (unscreened_reason != "") | ~np.isfinite(z)
     reason_fallback = np.where(unscreened_reason != "", unscreened_reason, "could not be predicted from the neighbours")
     absz = np.abs(z)
-    echoed = local.echo >= echo_share
+    echoed = local.coherent
     score = np.where(echoed, 0.5 * absz, absz)
 
     role = coincident["role"].to_numpy()
     contradicted = role == "contradicted"
     undecided = role == "undecided"
 
-    suspect = ~unscreened & (((absz >= config.suspect_z) & ~echoed) | contradicted)
+    slip_fits = slips[0] if slips is not None else np.zeros(n, dtype=bool)
+    suspect = ~unscreened & ((((absz >= config.suspect_z) | (slip_fits & (absz >= config.review_z))) & ~echoed) | contradicted)
     review = ~unscreened & ~suspect & ((absz >= config.review_z) | undecided)
     status = np.where(unscreened, "unscreened", np.where(suspect, "suspect", np.where(review, "review", "ok")))
-    score = np.where(contradicted, np.maximum(score, config.suspect_z), score)
+    score = np.where(contradicted | (suspect & slip_fits), np.maximum(score, config.suspect_z), score)
     score = np.where(unscreened, np.nan, np.round(score, 3))
 
     # --- reasons, built column-wise -------------------------------------------------
@@ -134,11 +140,16 @@ def decide(
                 f"expected from {neighbours}"
             )
             if echoed[i]:
-                share = local.echo[i]
-                text += (
-                    f", but {share:.0%} of those neighbours deviate the same way: likely a real local feature "
-                    "(for example a pumping cone or a valley), check before correcting"
-                )
+                if local.explained_by_curvature[i]:
+                    text += (
+                        f", but the curved surface of those neighbours predicts it within {abs(local.curved_z[i]):.1f} sd: "
+                        "likely a real local feature (for example a pumping cone or a valley), check before correcting"
+                    )
+                else:
+                    text += (
+                        f", but {local.echo[i]:.0%} of those neighbours deviate the same way: likely a real local "
+                        "feature (for example a pumping cone or a valley), check before correcting"
+                    )
         else:
             text = f"within {a:.1f} robust sd of the {_num(local.expected[i])} expected from {neighbours}"
         main.append(text)
@@ -172,6 +183,8 @@ def decide(
             text[i] = f"coincident record disagrees by {_num(diff[i])} ({other}); the neighbours cannot tell which is right"
     parts.append(text)
     flagged = np.isin(status, ("suspect", "review"))
+    if slips is not None:
+        parts.append(np.where(flagged, slips[1], ""))
     for extra in supporting:
         parts.append(np.where(flagged, extra, ""))
 

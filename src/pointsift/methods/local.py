@@ -68,6 +68,13 @@ class LocalResult:
     echo : ndarray
         Share of neighbours whose own residual goes the same way beyond
         ``echo_z`` (1 = every neighbour deviates alike: a coherent feature).
+    curved_z : ndarray
+        Standardized residual from a quadratic through the same neighbours.
+    coherent : ndarray of bool
+        The deviation is shared by the neighbours (echoed, or explained by
+        their curvature): a likely real feature, not a lone error.
+    explained_by_curvature : ndarray of bool
+        The coherent test passed through the quadratic.
     excluded : ndarray of bool
         Points removed as neighbours in the second pass (gross, not echoed).
     distance_model : tuple of ndarray
@@ -81,6 +88,9 @@ class LocalResult:
     neighbour_count: np.ndarray
     neighbour_distance: np.ndarray
     echo: np.ndarray
+    curved_z: np.ndarray
+    coherent: np.ndarray
+    explained_by_curvature: np.ndarray
     excluded: np.ndarray
     distance_model: tuple[np.ndarray, np.ndarray]
 
@@ -97,6 +107,44 @@ def _masked_median(a: np.ndarray, mask: np.ndarray) -> np.ndarray:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # rows without neighbours give NaN on purpose
         return np.nanmedian(filled, axis=1)
+
+
+def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarray, ridge_from: int):
+    """Weighted least squares for every row at once.
+
+    Returns the coefficients and the variance inflation of the intercept (the
+    prediction at the point itself) for unit error variance, by the sandwich
+    ``(X'WX)^-1 X'W^2X (X'WX)^-1``, element [0, 0]. A light ridge on the terms
+    from ``ridge_from`` on keeps rows solvable when the neighbours lie on a line
+    (a road, a valley floor): the slope or curvature across it is then 0.
+    """
+    p = design.shape[2]
+    weighted = design * w[:, :, None]
+    a = np.einsum("nmi,nmj->nij", weighted, design)
+    b = np.einsum("nmi,nm->ni", weighted, v)
+    ridge = 1e-3 * np.maximum(w.sum(axis=1), 1e-12)
+    for term in range(ridge_from, p):
+        a[:, term, term] += ridge
+    a[~ok] = np.eye(p)
+    a_inv = np.linalg.inv(a)
+    coef = np.einsum("nij,nj->ni", a_inv, b)
+    b2 = np.einsum("nmi,nmj->nij", weighted, weighted)
+    leverage = np.einsum("ni,nij,nj->n", a_inv[:, 0, :], b2, a_inv[:, :, 0])
+    return coef, leverage
+
+
+@dataclass(frozen=True)
+class PlaneFit:
+    """Output of :func:`robust_plane_predict` (NaN where not predicted)."""
+
+    expected: np.ndarray
+    fit_scale: np.ndarray
+    leverage: np.ndarray
+    count: np.ndarray
+    distance: np.ndarray
+    quadratic: np.ndarray
+    quadratic_leverage: np.ndarray
+    curvature: np.ndarray
 
 
 def robust_plane_predict(
@@ -124,11 +172,16 @@ def robust_plane_predict(
 
     Returns
     -------
-    expected, fit_scale, leverage, count, distance : ndarray
-        Prediction; robust sd of the neighbours about the plane (corrected
-        for the fitted parameters); variance inflation of the prediction
-        relative to one observation (``Var(pred) / sigma^2``); neighbours
-        used; median neighbour distance.
+    PlaneFit
+        ``expected`` (prediction); ``fit_scale`` (robust sd of the
+        neighbours about the plane, corrected for the fitted parameters);
+        ``leverage`` (variance inflation of the prediction relative to one
+        observation, ``Var(pred) / sigma^2``); ``count`` (neighbours used);
+        ``distance`` (median neighbour distance); ``quadratic``,
+        ``quadratic_leverage``, ``curvature`` (the same neighbours and final
+        weights with a quadratic surface: its prediction, variance
+        inflation, and Laplacian sign indicator ``a_xx + a_yy``; NaN with
+        fewer than 8 weighted neighbours).
     """
     n = xy.shape[0]
     idx = graph.indices
@@ -145,61 +198,47 @@ def robust_plane_predict(
 
     centre = _masked_median(v, mask)
     spread = _MAD_TO_SD * _masked_median(np.abs(v - centre[:, None]), mask)
+    # scale floor: first from the raw spread (only to start), then a fifth of the
+    # typical fitted scale, so a row of identical neighbours cannot give zero weights
     floor_global = np.nanmedian(spread[ok]) if ok.any() else 1.0
     floor_global = floor_global if np.isfinite(floor_global) and floor_global > 0 else 1.0
-    floor = 0.05 * floor_global
+    floor = 1e-3 * floor_global
     w_rob = _bisquare((v - centre[:, None]) / (6.0 * np.maximum(spread, floor)[:, None]))
     w_rob = np.where(mask, w_rob, 0.0)
 
     dof = np.maximum(count - 3, 1)
     df_correction = np.sqrt(count / dof)
-    coef = np.zeros((n, 3))
+    plane = np.stack([np.ones_like(dx), dx, dy], axis=2)
     fit_scale = spread
     for step in range(iterations + 1):
         w = w_dist * w_rob
         # too few neighbours kept (all weights 0 for a scattered row): fall back to distance weights
         lost = (w > 0).sum(axis=1) < 3
         w = np.where(lost[:, None], w_dist, w)
-        sw = w.sum(axis=1)
-        a = np.empty((n, 3, 3))
-        a[:, 0, 0] = sw
-        a[:, 0, 1] = a[:, 1, 0] = (w * dx).sum(axis=1)
-        a[:, 0, 2] = a[:, 2, 0] = (w * dy).sum(axis=1)
-        a[:, 1, 1] = (w * dx * dx).sum(axis=1)
-        a[:, 1, 2] = a[:, 2, 1] = (w * dx * dy).sum(axis=1)
-        a[:, 2, 2] = (w * dy * dy).sum(axis=1)
-        # a light ridge on the slopes keeps wells strung along a line (a road, a
-        # valley floor) solvable: the slope across the line is then taken as 0
-        ridge = 1e-3 * np.maximum(sw, 1e-12)
-        a[:, 1, 1] += ridge
-        a[:, 2, 2] += ridge
-        a[~ok] = np.eye(3)
-        b = np.stack([(w * v).sum(axis=1), (w * v * dx).sum(axis=1), (w * v * dy).sum(axis=1)], axis=1)
-        coef = np.linalg.solve(a, b[..., None])[..., 0]
-        fitted = coef[:, 0:1] + coef[:, 1:2] * dx + coef[:, 2:3] * dy
-        resid = v - fitted
+        coef, leverage = _batched_wls(plane, v, w, ok, ridge_from=1)
+        resid = v - np.einsum("nmp,np->nm", plane, coef)
         fit_scale = _MAD_TO_SD * _masked_median(np.abs(resid), mask) * df_correction
+        if step == 0:
+            typical = np.nanmedian(fit_scale[ok]) if ok.any() else np.nan
+            if np.isfinite(typical) and typical > 0:
+                floor = 0.2 * typical
         if step < iterations:
             w_rob = np.where(mask, _bisquare(resid / (_BISQUARE_C * np.maximum(fit_scale, floor)[:, None])), 0.0)
 
-    # variance of the intercept (the prediction at the point) for weights w and
-    # unit error variance: sandwich (X'WX)^-1 X'W^2X (X'WX)^-1, element [0, 0]
-    a_inv = np.linalg.inv(a)
-    w2 = w * w
-    b2 = np.empty((n, 3, 3))
-    b2[:, 0, 0] = w2.sum(axis=1)
-    b2[:, 0, 1] = b2[:, 1, 0] = (w2 * dx).sum(axis=1)
-    b2[:, 0, 2] = b2[:, 2, 0] = (w2 * dy).sum(axis=1)
-    b2[:, 1, 1] = (w2 * dx * dx).sum(axis=1)
-    b2[:, 1, 2] = b2[:, 2, 1] = (w2 * dx * dy).sum(axis=1)
-    b2[:, 2, 2] = (w2 * dy * dy).sum(axis=1)
-    leverage = np.einsum("ni,nij,nj->n", a_inv[:, 0, :], b2, a_inv[:, :, 0])
+    # the same neighbours and weights, with a quadratic: does the neighbours'
+    # own curvature (a cone, a valley floor) predict the point?
+    quad = np.concatenate([plane, np.stack([dx * dx, dx * dy, dy * dy], axis=2)], axis=2)
+    enough = ok & ((w > 0).sum(axis=1) >= 8)
+    qcoef, qleverage = _batched_wls(quad, v, w, enough, ridge_from=3)
+    quadratic = np.where(enough, qcoef[:, 0], np.nan)
+    curvature = np.where(enough, qcoef[:, 3] + qcoef[:, 5], np.nan)
+    qleverage = np.where(enough, qleverage, np.nan)
 
     expected = np.where(ok, coef[:, 0], np.nan)
     fit_scale = np.where(ok, np.maximum(fit_scale, floor), np.nan)
     leverage = np.where(ok, leverage, np.nan)
     distance = np.where(ok, length, np.nan)
-    return expected, fit_scale, leverage, np.where(ok, count, 0), distance
+    return PlaneFit(expected, fit_scale, leverage, np.where(ok, count, 0), distance, quadratic, qleverage, curvature)
 
 
 def _pool_adjacent_violators(y: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -273,20 +312,33 @@ def neighbour_echo(z: np.ndarray, graph: NeighbourGraph, threshold: float) -> np
 
 
 def _one_pass(xy, values, graph, min_neighbours, local_df, prior_df):
-    expected, fit_scale, leverage, count, distance = robust_plane_predict(
-        xy, values, graph, min_neighbours=min_neighbours
-    )
-    residual = values - expected
-    inflation = np.sqrt(1.0 + leverage)
-    knots, knot_scale = distance_scale(distance, residual / inflation)
+    fit = robust_plane_predict(xy, values, graph, min_neighbours=min_neighbours)
+    residual = values - fit.expected
+    inflation = np.sqrt(1.0 + fit.leverage)
+    knots, knot_scale = distance_scale(fit.distance, residual / inflation)
     with np.errstate(all="ignore"):
-        global_scale = np.interp(np.log(distance), knots, knot_scale) * inflation
-    local_scale = fit_scale * inflation
-    nu_local = np.maximum(count - 3, 1) * (local_df / 7.0)
-    pooled = np.sqrt((nu_local * local_scale**2 + prior_df * global_scale**2) / (nu_local + prior_df))
-    with np.errstate(all="ignore"):
-        z = residual / pooled
-    return expected, residual, pooled, z, count, distance, (knots, knot_scale)
+        global_scale = np.interp(np.log(fit.distance), knots, knot_scale)
+        nu_local = np.maximum(fit.count - 3, 1) * (local_df / 7.0)
+        unit = np.sqrt((nu_local * fit.fit_scale**2 + prior_df * global_scale**2) / (nu_local + prior_df))
+        scale = unit * inflation
+        z = residual / scale
+        curved_z = (values - fit.quadratic) / (unit * np.sqrt(1.0 + fit.quadratic_leverage))
+    return fit, residual, scale, z, curved_z, (knots, knot_scale)
+
+
+def _curved_residual(values, fit):
+    return values - fit.quadratic
+
+
+def _coherent(z, curved_z, curvature, echo, echo_share, curve_z, plane_residual, curved_residual):
+    """A deviation the neighbours share: echoed by them, or predicted by the
+    curvature of their own surface bending the same way (a bowl for a low
+    value, a dome for a high one) and accounting for at least half of it."""
+    bends_along = np.sign(curvature) == -np.sign(z)
+    with np.errstate(invalid="ignore"):
+        most = np.abs(curved_residual) <= 0.5 * np.abs(plane_residual)
+    explained = np.isfinite(curved_z) & (np.abs(curved_z) < curve_z) & bends_along & most
+    return (echo >= echo_share) | explained, explained
 
 
 def local_residuals(
@@ -298,6 +350,7 @@ def local_residuals(
     gross_z: float = 6.0,
     echo_z: float = 2.0,
     echo_share: float = 0.34,
+    curve_z: float = 3.0,
     local_df: float = 7.0,
     prior_df: float = 8.0,
 ) -> LocalResult:
@@ -314,11 +367,15 @@ def local_residuals(
     min_neighbours : int
         Fewer usable neighbours leave the point unpredicted (NaN).
     gross_z : float
-        First-pass |z| beyond which a point that its neighbours do not echo
-        is removed as a neighbour for the second pass.
+        First-pass |z| beyond which a point that is not coherent with its
+        neighbours is removed as a neighbour for the second pass.
     echo_z, echo_share : float
         A point is echoed when at least ``echo_share`` of its neighbours
         deviate the same way by at least ``echo_z``.
+    curve_z : float
+        A point is explained by the curvature of its neighbours when a
+        quadratic through them (same weights) predicts it within ``curve_z``
+        and bends the same way.
     local_df, prior_df : float
         Weights of the local and the distance scale when pooling them.
 
@@ -327,17 +384,25 @@ def local_residuals(
     LocalResult
     """
     values = np.asarray(values, dtype=float)
-    first = _one_pass(xy, values, graph, min_neighbours, local_df, prior_df)
-    z1 = first[3]
+    fit, residual1, _, z1, curved1, _ = _one_pass(xy, values, graph, min_neighbours, local_df, prior_df)
     echo1 = neighbour_echo(z1, graph, echo_z)
-    excluded = np.isfinite(z1) & (np.abs(z1) >= gross_z) & ~(echo1 >= echo_share)
-    if excluded.any():
-        keep = np.isfinite(values) & ~excluded
-        second = _one_pass(xy, values, graph.restrict(keep), min_neighbours, local_df, prior_df)
-        graph_used = graph.restrict(keep)
-    else:
-        second = first
-        graph_used = graph
-    expected, residual, scale, z, count, distance, model = second
+    coherent1, _ = _coherent(z1, curved1, fit.curvature, echo1, echo_share, curve_z, residual1, _curved_residual(values, fit))
+    excluded = np.isfinite(z1) & (np.abs(z1) >= gross_z) & ~coherent1
+    graph_used = graph.restrict(np.isfinite(values) & ~excluded) if excluded.any() else graph
+    fit, residual, scale, z, curved_z, model = _one_pass(xy, values, graph_used, min_neighbours, local_df, prior_df)
     echo = neighbour_echo(z, graph_used, echo_z)
-    return LocalResult(expected, residual, scale, z, count, distance, echo, excluded, model)
+    coherent, explained = _coherent(z, curved_z, fit.curvature, echo, echo_share, curve_z, residual, _curved_residual(values, fit))
+    return LocalResult(
+        expected=fit.expected,
+        residual=residual,
+        scale=scale,
+        z=z,
+        neighbour_count=fit.count,
+        neighbour_distance=fit.distance,
+        echo=echo,
+        curved_z=curved_z,
+        coherent=coherent,
+        explained_by_curvature=explained,
+        excluded=excluded,
+        distance_model=model,
+    )
