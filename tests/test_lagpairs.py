@@ -312,3 +312,20 @@ def test_screen_rejects_bad_options():
         screen_lag_pairs(xy, np.zeros(4), angle_tolerance=0)
     with pytest.raises(InputError, match="one entry per point"):
         screen_lag_pairs(xy, np.zeros(3))
+
+
+def test_chunked_enumeration_used_for_thinning_finds_every_pair_once(monkeypatch):
+    # The thinning path enumerates pairs chunk by chunk; with nothing thinned and
+    # tiny chunks it must still give every pair exactly once (brute-force reference).
+    from scipy.spatial import cKDTree
+
+    import pointsift.methods.lagpairs as lagpairs
+
+    monkeypatch.setattr(lagpairs, "_CHUNK_PAIRS", 50)
+    xy = lattice_with_duplicates()
+    pts = xy[np.isfinite(xy).all(axis=1)]
+    tree = cKDTree(pts)
+    a, b = lagpairs._thinned_pairs(pts, tree, 15.0 * (1 + 1e-9), 15.0, 1000, 1.0, np.random.default_rng(0))
+    got = sorted(zip(a.tolist(), b.tolist()))
+    assert len(got) == len(set(got))
+    assert got == sorted(map(tuple, brute_pairs_count(pts, 15.0)))

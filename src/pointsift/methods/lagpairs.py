@@ -237,24 +237,9 @@ def find_pairs(
         tails.append(a[d <= max_distance])
         heads.append(b[d <= max_distance])
     elif sub.size >= 2 and sub_in_reach > 0:
-        # Thinning: enumerate chunk by chunk so memory stays bounded.
-        order = np.argsort(sub_pts[:, 0], kind="stable")
-        chunk = max(1, int(_CHUNK_PAIRS * sub.size / max(2 * sub_in_reach, 1)))
-        for start in range(0, sub.size, chunk):
-            idx = order[start:start + chunk]
-            records = cKDTree(sub_pts[idx]).sparse_distance_matrix(tree, radius, output_type="ndarray")
-            a = idx[records["i"]]
-            b = records["j"].astype(np.int64)
-            keep = a < b
-            a, b = a[keep], b[keep]
-            d = np.hypot(sub_pts[b, 0] - sub_pts[a, 0], sub_pts[b, 1] - sub_pts[a, 1])
-            keep = d <= max_distance
-            a, b = a[keep], b[keep]
-            if pair_fraction < 1.0:
-                keep = rng.random(a.size) < pair_fraction
-                a, b = a[keep], b[keep]
-            tails.append(a)
-            heads.append(b)
+        a, b = _thinned_pairs(sub_pts, tree, radius, max_distance, sub_in_reach, pair_fraction, rng)
+        tails.append(a)
+        heads.append(b)
     a = np.concatenate(tails) if tails else np.empty(0, np.int64)
     b = np.concatenate(heads) if heads else np.empty(0, np.int64)
     if a.size > pair_budget:
@@ -279,6 +264,34 @@ def find_pairs(
         tail[order], head[order], distance[order], azimuth[order],
         max_distance, in_reach, point_fraction, pair_fraction, int(seed), estimated,
     )
+
+
+def _thinned_pairs(pts, tree, radius, max_distance, in_reach, keep_fraction, rng):
+    """Pairs ``a < b`` within ``max_distance``, each kept with probability ``keep_fraction``.
+
+    Tail points are taken in chunks (sorted by x, so each chunk is compact)
+    holding about ``_CHUNK_PAIRS`` ordered pairs, so memory stays bounded
+    however many pairs are in reach.
+    """
+    order = np.argsort(pts[:, 0], kind="stable")
+    chunk = max(1, int(_CHUNK_PAIRS * pts.shape[0] / max(2 * in_reach, 1)))
+    tails, heads = [], []
+    for start in range(0, pts.shape[0], chunk):
+        idx = order[start:start + chunk]
+        records = cKDTree(pts[idx]).sparse_distance_matrix(tree, radius, output_type="ndarray")
+        a = idx[records["i"]]
+        b = records["j"].astype(np.int64)
+        keep = a < b
+        a, b = a[keep], b[keep]
+        d = np.hypot(pts[b, 0] - pts[a, 0], pts[b, 1] - pts[a, 1])
+        keep = d <= max_distance
+        a, b = a[keep], b[keep]
+        if keep_fraction < 1.0:
+            keep = rng.random(a.size) < keep_fraction
+            a, b = a[keep], b[keep]
+        tails.append(a)
+        heads.append(b)
+    return np.concatenate(tails), np.concatenate(heads)
 
 
 def _count_pairs(tree: cKDTree, radius: float) -> int:
