@@ -614,5 +614,7 @@ def test_progress_bar_on_a_terminal_lines_otherwise_silence_with_quiet(tmp_path)
     batch.run_batch(plan, progress=batch.LineProgress(lines))
     text = lines.getvalue().splitlines()
     assert text[0] == "pointsift batch: 3 units"
-    assert text[1].startswith("[1/3] failed broken: ")
-    assert text[2].startswith("[2/3] skipped-up-to-date net0 (")
+    # up-to-date units are reported first (found before any screening starts), then the rest
+    assert text[1].startswith("[1/3] skipped-up-to-date net0 (")
+    assert text[2].startswith("[2/3] skipped-up-to-date net1 (")
+    assert text[3].startswith("[3/3] failed broken: ") and "coordinate columns" in text[3]
