@@ -101,12 +101,22 @@ def _bisquare(u: np.ndarray) -> np.ndarray:
 
 
 def _masked_median(a: np.ndarray, mask: np.ndarray) -> np.ndarray:
-    filled = np.where(mask, a, np.nan)
-    if not filled.shape[1]:
-        return np.full(filled.shape[0], np.nan)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # rows without neighbours give NaN on purpose
-        return np.nanmedian(filled, axis=1)
+    """Median of each row over the masked-in entries (NaN for an empty row).
+
+    Sorting short rows and indexing the middle is much faster than
+    ``numpy.nanmedian`` on an (n, k) array.
+    """
+    n, width = a.shape
+    if width == 0:
+        return np.full(n, np.nan)
+    filled = np.sort(np.where(mask, a, np.inf), axis=1)
+    count = mask.sum(axis=1)
+    low = np.clip((count - 1) // 2, 0, width - 1)
+    high = np.clip(count // 2, 0, width - 1)
+    rows = np.arange(n)
+    with np.errstate(invalid="ignore"):
+        out = 0.5 * (filled[rows, low] + filled[rows, high])
+    return np.where(count > 0, out, np.nan)
 
 
 def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarray, ridge_from: int):
@@ -120,16 +130,18 @@ def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarra
     """
     p = design.shape[2]
     weighted = design * w[:, :, None]
-    a = np.einsum("nmi,nmj->nij", weighted, design)
-    b = np.einsum("nmi,nm->ni", weighted, v)
+    weighted_t = weighted.transpose(0, 2, 1)
+    a = weighted_t @ design
+    b = (weighted_t @ v[:, :, None])[:, :, 0]
     ridge = 1e-3 * np.maximum(w.sum(axis=1), 1e-12)
     for term in range(ridge_from, p):
         a[:, term, term] += ridge
     a[~ok] = np.eye(p)
     a_inv = np.linalg.inv(a)
-    coef = np.einsum("nij,nj->ni", a_inv, b)
-    b2 = np.einsum("nmi,nmj->nij", weighted, weighted)
-    leverage = np.einsum("ni,nij,nj->n", a_inv[:, 0, :], b2, a_inv[:, :, 0])
+    coef = (a_inv @ b[:, :, None])[:, :, 0]
+    # row 0 of A^-1 X'W, squared and summed = [A^-1 X'W^2 X A^-1]_00
+    influence = (a_inv[:, 0:1, :] @ weighted_t)[:, 0, :]
+    leverage = (influence * influence).sum(axis=1)
     return coef, leverage
 
 
@@ -152,7 +164,7 @@ def robust_plane_predict(
     values: np.ndarray,
     graph: NeighbourGraph,
     *,
-    iterations: int = 5,
+    iterations: int = 3,
     min_neighbours: int = 3,
 ):
     """Predict each value from its neighbours with a robust local plane.
@@ -216,7 +228,7 @@ def robust_plane_predict(
         lost = (w > 0).sum(axis=1) < 3
         w = np.where(lost[:, None], w_dist, w)
         coef, leverage = _batched_wls(plane, v, w, ok, ridge_from=1)
-        resid = v - np.einsum("nmp,np->nm", plane, coef)
+        resid = v - (plane @ coef[:, :, None])[:, :, 0]
         fit_scale = _MAD_TO_SD * _masked_median(np.abs(resid), mask) * df_correction
         if step == 0:
             typical = np.nanmedian(fit_scale[ok]) if ok.any() else np.nan
