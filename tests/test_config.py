@@ -51,10 +51,10 @@ def test_parse_length_rejects_non_positive(text):
 
 def test_defaults_are_the_documented_ones():
     # Issue 2 / README option table: no-data -9999, -999, -99999; k 10; 999 permutations;
-    # coincident tolerance 0.5 m; review 3.5, suspect 5; FDR 0.05.
+    # coincident tolerance 0.5 m; review 3, suspect 4; FDR 0.05.
     c = ScreenConfig(value="level_m")
     assert set(c.sentinels) == {-9999.0, -999.0, -99999.0} == set(DEFAULT_SENTINELS)
-    assert (c.k, c.permutations, c.coincident_tolerance, c.review_z, c.suspect_z, c.fdr) == (10, 999, 0.5, 3.5, 5.0, 0.05)
+    assert (c.k, c.permutations, c.coincident_tolerance, c.review_z, c.suspect_z, c.fdr) == (10, 999, 0.5, 3.0, 4.0, 0.05)
     assert c.graph == "knn" and c.min_neighbours == 4
 
 
