@@ -12,7 +12,7 @@ GeoPackage each:
   value of that column.
 
 Outputs go to one directory: ``<unit>.gpkg`` per unit (plus ``<unit>.html``
-when reports are asked for), a small ``<unit>.batch.json`` beside each output
+when reports are asked for and available), a small ``<unit>.batch.json`` beside each output
 recording how it was made, and the batch index ``batch-index.csv`` /
 ``batch-index.gpkg`` listing every unit with its outcome.
 
@@ -537,9 +537,8 @@ def parse_plan(
         entries = [entries]
         errors.add("", "input", "write each input as an [[input]] table (double brackets), not [input].")
     if not isinstance(entries, list) or not entries:
-        if not isinstance(entries, list) or "input" not in data:
-            errors.add("", None, "the plan lists no inputs: add at least one [[input]] table with a path, "
-                       'e.g. [[input]]\\npath = "data/*.gpkg".')
+        errors.add("", None, "the plan lists no inputs: add at least one [[input]] table with a path, "
+                   'e.g. an [[input]] line followed by path = "data/*.gpkg".')
         entries = []
     valid_input_keys = sorted(option_names) + sorted(_INPUT_KEYS)
     specs = []
