@@ -13,6 +13,7 @@ from pointsift.methods.strips import (
     TABLE_SIZES,
     Z_LEVELS,
     calibrate_u,
+    flagged_strip_evidence,
     null_abs_quantiles,
     plot_strip_profiles,
     strip_summary,
@@ -180,6 +181,11 @@ def test_default_width_from_density():
     assert strip_width(x, y, 0, target_per_strip=25) == 250.0
     result = strip_summary(x, y, v)
     assert result.widths == {90.0: 200.0, 0.0: 250.0}
+    # Large layers: about 100 strips per family. Hand-worked: 20,000 points over 10 km, 200 per strip,
+    # 10,000 m x 200 / 20,000 = 100 m.
+    rng = np.random.default_rng(2)
+    big_x, big_y = rng.uniform(0, 10_000, (2, 20_000))
+    assert strip_width(big_x, big_y, 90) == 100.0
 
 
 def test_a_wild_value_flags_its_strip_and_is_its_extreme():
@@ -194,6 +200,9 @@ def test_a_wild_value_flags_its_strip_and_is_its_extreme():
     row = result.table.set_index("strip").loc[strip]
     assert row["flagged"] and row["u"] > 3 and row["extreme_row"] == 123
     assert result.flagged["strip"].tolist() == [strip]
+    evidence = flagged_strip_evidence(result, n)
+    assert evidence[123].startswith(f"extreme value of west-east strip {strip}, whose mean")
+    assert (evidence[np.arange(n) != 123] == "").all()
 
 
 def test_zero_iqr_strip_is_not_judged():

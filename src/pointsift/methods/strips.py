@@ -14,9 +14,10 @@ exactly one strip of each family; a point on an edge belongs to the strip on
 its far side (intervals are closed below, open above).
 
 Default width: the across extent of the usable points times
-``target_per_strip / n``, rounded to a "nice" number (1, 2, 2.5 or 5 times a
-power of ten), so that strips hold about ``target_per_strip`` points on
-average.
+``max(target_per_strip, n / max_strips) / n``, rounded to a "nice" number (1,
+2, 2.5 or 5 times a power of ten), so that strips hold about
+``target_per_strip`` (25) points on average, and large layers get about
+``max_strips`` (100) strips per family rather than thousands.
 
 Per strip: n, mean, median, sd (``n - 1`` denominator), min, max, 5th, 25th,
 75th and 95th percentiles (linear interpolation, numpy default / R type 7) and
@@ -85,6 +86,7 @@ __all__ = [
     "simulate_mean_median_ratio",
     "build_null_table",
     "plot_strip_profiles",
+    "flagged_strip_evidence",
     "DEFAULT_DIRECTIONS",
     "MIN_STRIP_N",
     "FLAG_U",
@@ -270,8 +272,14 @@ def calibrate_u(t, n) -> np.ndarray:
     --------
     >>> float(calibrate_u(0.0, 10))
     0.0
-    >>> bool(calibrate_u(0.5, 5) < 0.5 * (10 / (3.1416 / 2 - 1)) ** 0.5 / 2)  # far below the asymptotic u
-    True
+
+    At n = 5 a mean one robust sd above the median is unremarkable, although
+    the asymptotic formula ``T sqrt(n / (pi/2 - 1))`` would give 2.96:
+
+    >>> round(float(calibrate_u(1.0, 5)), 1)
+    1.9
+    >>> round(float(calibrate_u(-0.3, 50)), 1)  # at n = 50 close to the asymptote (-2.81)
+    -2.8
     """
     t, n = np.broadcast_arrays(np.asarray(t, dtype=float), np.asarray(n))
     out = np.full(t.shape, np.nan)
@@ -358,7 +366,7 @@ def _nice(width: float) -> float:
     return float(choice * 10.0**exponent)
 
 
-def strip_width(x, y, direction: float = 90.0, target_per_strip: int = 25) -> float:
+def strip_width(x, y, direction: float = 90.0, target_per_strip: int = 25, max_strips: int = 100) -> float:
     """Default strip width for one direction, from the point density.
 
     Parameters
@@ -369,12 +377,16 @@ def strip_width(x, y, direction: float = 90.0, target_per_strip: int = 25) -> fl
         Azimuth along which the strips run (degrees).
     target_per_strip : int
         Points a strip should hold on average.
+    max_strips : int
+        Large layers get wider strips so that there are about this many at
+        most (a readable layer and chart).
 
     Returns
     -------
     float
-        ``across_extent * target_per_strip / n`` rounded to 1, 2, 2.5 or 5
-        times a power of ten; 1.0 when the points have no across extent.
+        ``across_extent * max(target_per_strip, n / max_strips) / n`` rounded
+        to 1, 2, 2.5 or 5 times a power of ten; 1.0 when the points have no
+        across extent.
 
     Examples
     --------
@@ -383,6 +395,8 @@ def strip_width(x, y, direction: float = 90.0, target_per_strip: int = 25) -> fl
     """
     if not (isinstance(target_per_strip, (int, np.integer)) and target_per_strip >= 1):
         raise ConfigError(f"target_per_strip must be a whole number of at least 1, got {target_per_strip!r}.")
+    if not (isinstance(max_strips, (int, np.integer)) and max_strips >= 1):
+        raise ConfigError(f"max_strips must be a whole number of at least 1, got {max_strips!r}.")
     xy = np.column_stack([np.asarray(x, dtype=float), np.asarray(y, dtype=float)])
     xy = xy[np.isfinite(xy).all(axis=1)]
     if xy.shape[0] == 0:
@@ -392,7 +406,9 @@ def strip_width(x, y, direction: float = 90.0, target_per_strip: int = 25) -> fl
     extent = float(s.max() - s.min())
     if not extent > 0:
         return 1.0
-    return _nice(extent * min(target_per_strip, xy.shape[0]) / xy.shape[0])
+    n = xy.shape[0]
+    per_strip = min(max(target_per_strip, n / max_strips), n)
+    return _nice(extent * per_strip / n)
 
 
 def _group_percentile(sorted_values: np.ndarray, starts: np.ndarray, counts: np.ndarray, p: float) -> np.ndarray:
@@ -513,6 +529,7 @@ def strip_summary(
     *,
     min_n: int = MIN_STRIP_N,
     target_per_strip: int = 25,
+    max_strips: int = 100,
     flag_u: float = FLAG_U,
 ) -> StripResult:
     """Summarise values in parallel strips and flag strips whose mean and median disagree.
@@ -534,6 +551,9 @@ def strip_summary(
         Strips with fewer points are too small to judge (at least 5).
     target_per_strip : int
         Average points per strip aimed at by the default width.
+    max_strips : int
+        The default width keeps the number of strips per family near or
+        below this for large layers.
     flag_u : float
         Flag strips with ``|u|`` above this.
 
@@ -575,7 +595,7 @@ def strip_summary(
 
     tables, membership, widths = [], {}, {}
     for direction in dirs:
-        w = float(width) if width is not None else strip_width(xy[:, 0], xy[:, 1], direction, target_per_strip)
+        w = float(width) if width is not None else strip_width(xy[:, 0], xy[:, 1], direction, target_per_strip, max_strips)
         table, label = _one_direction(xy, vals, rows, direction, w, int(min_n), float(flag_u))
         tables.append(table)
         column = np.full(x.size, -1, dtype=np.int64)
@@ -589,6 +609,43 @@ def strip_summary(
         min_n=int(min_n),
         flag_u=float(flag_u),
     )
+
+
+def _family_name(direction: float) -> str:
+    if direction == 90.0:
+        return "west-east strip"
+    if direction == 0.0:
+        return "south-north strip"
+    return f"strip along {direction:g}\N{DEGREE SIGN}"
+
+
+def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
+    """Evidence text for the points that are the extreme value of a flagged strip.
+
+    Parameters
+    ----------
+    result : StripResult
+        From :func:`strip_summary`.
+    n_points : int
+        Number of input points (rows).
+
+    Returns
+    -------
+    ndarray of str, shape (n_points,)
+        ``""`` for most points; for an extreme value of a flagged strip e.g.
+        ``"extreme value of west-east strip 3, whose mean (379.9) is far from
+        its median (260; u = +4.03, n = 18)"``; several families are joined
+        with ``"; "``.
+    """
+    out = np.full(n_points, "", dtype=object)
+    for row in result.flagged.itertuples(index=False):
+        text = (
+            f"extreme value of {_family_name(float(row.direction))} {row.strip}, whose mean ({row.mean:.4g}) "
+            f"is far from its median ({row.median:.4g}; u = {row.u:+.2f}, n = {row.n})"
+        )
+        position = int(row.extreme_row)
+        out[position] = f"{out[position]}; {text}" if out[position] else text
+    return out.astype(str)
 
 
 def _direction_words(direction: float) -> str:
