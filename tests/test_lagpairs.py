@@ -251,13 +251,16 @@ def test_planted_error_is_the_attributed_point_and_its_neighbours_are_not(seed):
     screen = screen_lag_pairs(xy, values, ids=ids)
     pts = screen.points
     assert np.flatnonzero(pts["lagpair_culprit"]).tolist() == [centre]
-    partners = set(screen.pairs.tail[screen.flagged]) | set(screen.pairs.head[screen.flagged])
+    touching = screen.flagged & ((screen.pairs.tail == centre) | (screen.pairs.head == centre))
+    partners = set(screen.pairs.tail[touching]) | set(screen.pairs.head[touching])
     partners.discard(centre)
     assert len(partners) >= 3
     for p in partners:
         assert pts.loc[p, "lagpair_attributed"] == 0
         assert not pts.loc[p, "lagpair_culprit"]
     assert pts.loc[centre, "lagpair_flagged_share"] > 0.5
+    assert pts.loc[centre, "lagpair_dominance"] > 0.5
+    assert all(pts.loc[p, "lagpair_dominance"] < 0.5 for p in partners)
     table = screen.pair_table()
     touches = (table["tail_id"] == ids[centre]) | (table["head_id"] == ids[centre])
     assert touches.sum() >= 3
@@ -329,3 +332,28 @@ def test_chunked_enumeration_used_for_thinning_finds_every_pair_once(monkeypatch
     got = sorted(zip(a.tolist(), b.tolist()))
     assert len(got) == len(set(got))
     assert got == sorted(map(tuple, brute_pairs_count(pts, 15.0)))
+
+
+def test_dominance_equals_a_set_count():
+    # Reference: for each point, the flagged pairs with an end in {point} or its partners,
+    # counted as a Python set (no algebra); dominance = own flagged pairs / that count.
+    rng = np.random.default_rng(13)
+    xy = rng.uniform(0, 300, (250, 2))
+    values = smooth_field(xy * 3) + rng.standard_t(2, 250) * 0.3  # heavy tails: many flagged pairs
+    screen = screen_lag_pairs(xy, values)
+    assert screen.flagged.sum() > 20
+    screened = np.isfinite(screen.pair_z).any(axis=1)
+    partners = {i: set() for i in range(250)}
+    for t, h in zip(screen.pairs.tail[screened], screen.pairs.head[screened]):
+        partners[t].add(h)
+        partners[h].add(t)
+    flagged_pairs = list(zip(screen.pairs.tail[screen.flagged], screen.pairs.head[screen.flagged]))
+    for p in range(250):
+        near = partners[p] | {p}
+        around = [e for e in flagged_pairs if e[0] in near or e[1] in near]
+        own = [e for e in flagged_pairs if p in e]
+        got = screen.points.loc[p, "lagpair_dominance"]
+        if around:
+            assert got == pytest.approx(len(own) / len(around))
+        else:
+            assert math.isnan(got)

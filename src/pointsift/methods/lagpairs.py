@@ -428,8 +428,11 @@ class LagPairScreen:
     points : pandas.DataFrame
         One row per input point: ``lagpair_pairs`` (screened pairs the point
         is in), ``lagpair_flagged`` (of those, outside the band),
-        ``lagpair_flagged_share``, ``lagpair_attributed`` (flagged pairs in
-        which this point, not the other end, is the likely culprit),
+        ``lagpair_flagged_share``, ``lagpair_dominance`` (share of the
+        flagged pairs around the point, i.e. with an end at the point or at
+        one of its partners, that the point is in), ``lagpair_attributed``
+        (flagged pairs in which this point, not the other end, is the likely
+        culprit),
         ``lagpair_max_z`` (largest absolute departure of its pairs, in band
         scales) and ``lagpair_culprit`` (bool: the point is the likely culprit).
     classes : pandas.DataFrame
@@ -558,6 +561,7 @@ def screen_lag_pairs(
     min_class_pairs: int = 10,
     min_flagged: int = 2,
     culprit_share: float = 0.25,
+    culprit_dominance: float = 0.5,
     pair_budget: int = DEFAULT_PAIR_BUDGET,
     seed: int = 0,
 ) -> LagPairScreen:
@@ -568,13 +572,20 @@ def screen_lag_pairs(
     (centre: median difference; scale: MAD / 0.6745, or IQR / 1.349 when the
     MAD is 0). A pair is flagged when ``|difference - centre| > threshold *
     scale`` in any of its classes. Each point gets the count and share of its
-    pairs that are flagged. A flagged pair is attributed to the end whose
-    share of flagged pairs is higher (on equal shares, the end with more
-    flagged pairs; to neither on a full tie); a point is the
-    likely culprit when it has at least ``min_flagged`` flagged pairs, at
-    least ``culprit_share`` of its pairs are flagged, and it is the attributed
-    end of more than half of its flagged pairs. The other end of such a pair
-    gets no evidence.
+    pairs that are flagged, and its *dominance*: the share of the flagged
+    pairs around it (those with an end at the point or at one of its
+    partners) that it is in. A wrong value is in nearly every flagged pair
+    around it; a point in a genuinely rough patch (a pumping cone, a steep
+    flank) is one of many. A flagged pair is attributed to the end with the
+    higher dominance (then higher share, then more flagged pairs; to neither
+    on a full tie). A point is the likely culprit when it has at least
+    ``min_flagged`` flagged pairs, at least ``culprit_share`` of its pairs are
+    flagged, its dominance is at least ``culprit_dominance``, and it is the
+    attributed end of more than half of its flagged pairs. The other end of
+    such a pair gets no evidence.
+
+    A regional trend makes the differences of one direction depend on where
+    the pair lies; screen trend residuals when there is one.
 
     Parameters
     ----------
@@ -604,6 +615,8 @@ def screen_lag_pairs(
         Flagged pairs a point needs before it can be called the culprit.
     culprit_share : float
         Share of a point's pairs that must be flagged for it to be the culprit.
+    culprit_dominance : float
+        Least share of the flagged pairs around a point that it must be in.
     pair_budget : int
         Passed to :func:`find_pairs`.
     seed : int
@@ -682,15 +695,19 @@ def screen_lag_pairs(
     with np.errstate(invalid="ignore", divide="ignore"):
         share = np.where(n_pairs > 0, n_flagged / np.maximum(n_pairs, 1), np.nan)
     share0 = np.nan_to_num(share, nan=0.0)
-    # Higher share wins; on equal shares, more flagged pairs wins (a point
-    # whose single pair is the flagged one does not outweigh its partner).
-    st, sh = share0[tail_f], share0[head_f]
-    ft, fh = n_flagged[tail_f], n_flagged[head_f]
-    tail_wins = (st > sh) | ((st == sh) & (ft > fh))
-    head_wins = (sh > st) | ((sh == st) & (fh > ft))
+    dominance = _dominance(n, tail_s, head_s, tail_f, head_f, n_flagged)
+    dom0 = np.nan_to_num(dominance, nan=0.0)
+    # The end that dominates the flagged pairs around it wins; then the
+    # higher share, then more flagged pairs (a point whose single pair is the
+    # flagged one does not outweigh its partner).
+    key_t = np.column_stack([dom0[tail_f], share0[tail_f], n_flagged[tail_f]])
+    key_h = np.column_stack([dom0[head_f], share0[head_f], n_flagged[head_f]])
+    tail_wins = _lexi_greater(key_t, key_h)
+    head_wins = _lexi_greater(key_h, key_t)
     winner = np.where(tail_wins, tail_f, np.where(head_wins, head_f, -1))
     attributed = np.bincount(winner[winner >= 0], minlength=n)
-    is_culprit = (n_flagged >= min_flagged) & (share0 >= culprit_share) & (2 * attributed > n_flagged)
+    is_culprit = ((n_flagged >= min_flagged) & (share0 >= culprit_share) & (dom0 >= culprit_dominance)
+                  & (2 * attributed > n_flagged))
     culprit = np.full(pairs.size, -1, dtype=np.int64)
     culprit[np.flatnonzero(flagged)] = np.where((winner >= 0) & is_culprit[np.maximum(winner, 0)], winner, -1)
 
@@ -704,6 +721,7 @@ def screen_lag_pairs(
         "lagpair_pairs": n_pairs.astype(np.int64),
         "lagpair_flagged": n_flagged.astype(np.int64),
         "lagpair_flagged_share": share,
+        "lagpair_dominance": dominance,
         "lagpair_attributed": attributed.astype(np.int64),
         "lagpair_max_z": point_max_z,
         "lagpair_culprit": is_culprit,
@@ -728,8 +746,48 @@ def screen_lag_pairs(
             "min_class_pairs": int(min_class_pairs),
             "min_flagged": int(min_flagged),
             "culprit_share": float(culprit_share),
+            "culprit_dominance": float(culprit_dominance),
         },
     )
+
+
+def _lexi_greater(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Row-wise lexicographic ``a > b`` for two (m, k) arrays."""
+    greater = np.zeros(a.shape[0], dtype=bool)
+    equal = np.ones(a.shape[0], dtype=bool)
+    for col in range(a.shape[1]):
+        greater |= equal & (a[:, col] > b[:, col])
+        equal &= a[:, col] == b[:, col]
+    return greater
+
+
+def _dominance(n, tail_s, head_s, tail_f, head_f, n_flagged) -> np.ndarray:
+    """Share of the flagged pairs around each point that the point is in.
+
+    "Around" P are the flagged pairs with an end in P's closed neighbourhood
+    (P and its screened partners). With ``A`` the screened-pair adjacency,
+    ``F`` the flagged-pair adjacency and ``f`` the flagged counts, their number
+    is ``(A f)[P] - T[P]``, where ``T[P]`` counts flagged pairs between two
+    partners of P (``diag(A F A) / 2``), which ``A f`` counts twice. NaN
+    where no pair around is flagged.
+    """
+    from scipy import sparse
+
+    def adjacency(a, b):
+        data = np.ones(2 * a.size)
+        m = sparse.csr_array((data, (np.concatenate([a, b]), np.concatenate([b, a]))), shape=(n, n))
+        m.sum_duplicates()
+        return m
+
+    if tail_f.size == 0:
+        return np.full(n, np.nan)
+    adj = adjacency(tail_s, head_s)
+    flag = adjacency(tail_f, head_f)
+    around_with_double = adj @ n_flagged.astype(float)
+    between = np.asarray((adj @ flag).multiply(adj).sum(axis=1)).ravel() / 2.0
+    around = around_with_double - between
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(around > 0, n_flagged / np.maximum(around, 1e-300), np.nan)
 
 
 def lag_pairs_layer(screen: LagPairScreen, xy, crs=None, flagged_only: bool = True):
