@@ -15,6 +15,7 @@ from pointsift.methods.lagpairs import (
     axial_difference,
     find_pairs,
     lag_class_edges,
+    lag_pair_reasons,
     lag_pairs_layer,
     plot_lag_pairs,
     point_spacing,
@@ -269,6 +270,10 @@ def test_planted_error_is_the_attributed_point_and_its_neighbours_are_not(seed):
     assert (table.loc[~touches, "culprit_id"] == "").all()
     assert (table["pair_z"].abs() > screen.threshold).all()
     assert (table["difference"] == table["head_value"] - table["tail_value"]).all()
+    reasons = lag_pair_reasons(screen)
+    assert np.flatnonzero(reasons != "").tolist() == [centre]
+    flagged_here = pts.loc[centre, "lagpair_flagged"]
+    assert reasons[centre].startswith(f"lag pairs: {flagged_here} of its {pts.loc[centre, 'lagpair_pairs']} pairs")
 
 
 def test_no_culprit_on_a_clean_smooth_field():

@@ -56,6 +56,7 @@ __all__ = [
     "point_spacing",
     "lag_class_edges",
     "screen_lag_pairs",
+    "lag_pair_reasons",
     "lag_pairs_layer",
     "plot_lag_pairs",
 ]
@@ -788,6 +789,32 @@ def _dominance(n, tail_s, head_s, tail_f, head_f, n_flagged) -> np.ndarray:
     around = around_with_double - between
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(around > 0, n_flagged / np.maximum(around, 1e-300), np.nan)
+
+
+def lag_pair_reasons(screen: LagPairScreen) -> np.ndarray:
+    """One sentence of evidence per point that is the likely culprit of its flagged pairs, "" otherwise.
+
+    Meant as supporting evidence in a screen's reasons; the other ends of the
+    pairs get nothing.
+
+    Returns
+    -------
+    ndarray of object, shape (n,)
+    """
+    pts = screen.points
+    out = np.full(len(pts), "", dtype=object)
+    rows = np.flatnonzero(pts["lagpair_culprit"].to_numpy())
+    flagged = pts["lagpair_flagged"].to_numpy()
+    total = pts["lagpair_pairs"].to_numpy()
+    dominance = pts["lagpair_dominance"].to_numpy()
+    max_z = pts["lagpair_max_z"].to_numpy()
+    for i in rows:
+        out[i] = (
+            f"lag pairs: {flagged[i]} of its {total[i]} pairs with nearby points differ far more than other "
+            f"pairs at that distance and direction (up to {max_z[i]:.1f} robust sd), and it is in "
+            f"{dominance[i]:.0%} of the outlying pairs around it"
+        )
+    return out
 
 
 def lag_pairs_layer(screen: LagPairScreen, xy, crs=None, flagged_only: bool = True):
