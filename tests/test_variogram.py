@@ -350,3 +350,13 @@ def test_figures_are_made(meuse):
     assert len(cloud.axes[0].collections[0].get_offsets()) == 1000
     root = plot_sqrt_difference_cloud(res.empirical)
     assert len(root.axes[0].collections[0].get_offsets()) == int((res.empirical.pairs.distance > 0).sum())
+
+
+def test_run_info_is_strict_json_even_when_the_fit_fails():
+    import json
+
+    xy = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
+    res = analyse_variogram(xy, np.array([1.0, 2.0, 3.0]), lag_count=2)
+    assert not res.fit.trustworthy
+    text = json.dumps(res.run_info(), allow_nan=False)  # raises on NaN
+    assert '"trustworthy": false' in text

@@ -460,8 +460,8 @@ class VariogramFit:
         return variogram_model(self.model, h, self.nugget, self.partial_sill, self.range_parameter)
 
     def as_record(self) -> dict:
-        """Plain values for ``run_info``."""
-        return {
+        """Plain values for ``run_info`` (None where a number is undefined)."""
+        return _plain({
             "direction": self.direction,
             "estimator": self.estimator,
             "model": self.model,
@@ -483,7 +483,22 @@ class VariogramFit:
             "trustworthy": bool(self.trustworthy),
             "reasons": list(self.reasons),
             "candidates": {k: float(v) for k, v in self.candidates.items()},
-        }
+        })
+
+
+def _plain(value):
+    """Nested record with non-finite floats replaced by None (strict JSON has no NaN)."""
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.bool_):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
 
 
 def _fit_one(model: str, h: np.ndarray, g: np.ndarray, n: np.ndarray, h_max: float):
@@ -677,7 +692,7 @@ class VariogramAnalysis:
     def run_info(self) -> dict:
         """Plain values for ``run_info``: lag classes, fits, anisotropy, pair search, neighbourhood."""
         hint = neighbourhood_from_fit(self.fit)
-        return {
+        return _plain({
             "lag_edges": self.empirical.edges.tolist(),
             "directions": [direction_label(d) for d in self.empirical.directions],
             "angle_tolerance": self.empirical.angle_tolerance,
@@ -687,7 +702,7 @@ class VariogramAnalysis:
             "anisotropy": self.anisotropy,
             "pair_search": self.empirical.pairs.record,
             "neighbourhood": hint.as_record(),
-        }
+        })
 
 
 def analyse_variogram(
