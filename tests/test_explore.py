@@ -167,3 +167,21 @@ def test_describe_function_on_a_prepared_layer():
     assert list(layers["points"].columns[-3:]) == ["strip_45", "trend_fitted", "trend_residual"]
     none = describe(prepared, trend="none")
     assert none.trend is None and none.trend_info == {"method": "none"}
+
+
+def test_a_screened_layer_is_summarised_without_its_suspects(tmp_path):
+    wells = build_wells(150, seed=6)
+    wells.loc[[11, 40], "level_m"] += 30.0  # two planted wrong values
+    path = write_points(wells, tmp_path / "wells.gpkg")
+    screened = tmp_path / "screened.gpkg"
+    assert main(["-q", "screen", str(path), "--value", "level_m", "--permutations", "99", "--out", str(screened)]) == 0
+    out = tmp_path / "d.gpkg"
+    code = main(["-q", "describe", str(screened), "--layer", "screened", "--value", "level_m", "--out", str(out)])
+    assert code == 0
+    layer = pyogrio.read_dataframe(screened, layer="screened")
+    suspect = (layer["screen_status"] == "suspect").to_numpy()
+    assert suspect[[11, 40]].all()
+    table = pyogrio.read_dataframe(out, layer="summary").set_index("figure")
+    # Reference: pandas on the screened layer's values without its suspect rows.
+    assert table.loc["n", "all"] - table.loc["n", "without_suspects"] == suspect.sum()
+    assert table.loc["mean", "without_suspects"] == pytest.approx(layer.loc[~suspect, "level_m"].mean(), rel=1e-12)
