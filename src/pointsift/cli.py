@@ -81,7 +81,7 @@ def screen_options(func):
             "coincident_value_tolerance",
             type=click.FloatRange(min=0, min_open=True),
             default=None,
-            help="Records at one spot disagree when their values differ by more (default: 3 local robust sd).",
+            help="Records at one spot disagree when their values differ by more (default: 1 local robust sd).",
         ),
         click.option("--permutations", type=click.IntRange(99, 100000), default=None, help="Permutations for local Moran's I / Gi* (default 999)."),
         click.option("--seed", type=int, default=None, help="Seed of all random draws (default fixed, runs repeat)."),
@@ -281,10 +281,16 @@ def _echo_description(description, value_column: str, where: str) -> None:
             )
     info = description.trend_info
     if description.trend is not None:
-        click.echo(
-            f"Trend: {info['method']} explains {100 * info['variance_explained']:.1f} % of the variance "
-            f"(robust share {100 * info['robust_variance_explained']:.1f} %)."
-        )
+        import math
+
+        share, robust = info["variance_explained"], info["robust_variance_explained"]
+        if math.isfinite(share) and math.isfinite(robust):
+            click.echo(
+                f"Trend: {info['method']} explains {100 * share:.1f} % of the variance "
+                f"(robust share {100 * robust:.1f} %)."
+            )
+        else:
+            click.echo(f"Trend: {info['method']}; the share of variance explained is undefined (the values do not vary).")
     else:
         click.echo(f"Trend: {info.get('note', 'none requested')}.")
 
