@@ -226,7 +226,7 @@ def _parse_directions(ctx, param, value):
 
 
 def _echo_description(description, value_column: str, where: str) -> None:
-    from .methods.strips import _direction_words
+    from .methods.strips import direction_words
 
     prepared = description.prepared
     s = description.summary
@@ -271,7 +271,7 @@ def _echo_description(description, value_column: str, where: str) -> None:
         judged = int(part["u"].notna().sum())
         flagged = part[part["flagged"]]
         click.echo(
-            f"  {_direction_words(direction)}, {width:g} m wide: {len(part)} strips, "
+            f"  {direction_words(direction)}, {width:g} m wide: {len(part)} strips, "
             f"{judged} judged, {len(flagged)} flagged"
         )
         for _, row in flagged.iterrows():

@@ -86,7 +86,7 @@ class ScreenConfig:
         Points closer than this (metres) are treated as records at one spot.
     coincident_value_tolerance : float or None
         Two coincident records whose values differ by more than this disagree.
-        None derives it from the data (3 robust local standard deviations).
+        None derives it from the data (1 robust local standard deviation).
     graph : {"knn", "band"}
         Neighbour graph kind: k nearest neighbours or a distance band.
     k : int

@@ -157,6 +157,49 @@ def _detrend(prepared: Prepared, mode: str):
         return v, {"method": "none", "note": f"trend not removed: {exc}"}
 
 
+def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_info: dict, config: ScreenConfig):
+    """Lag-pair screen and variograms of the values the cluster statistics use (trend residuals when detrended).
+
+    Returns the :class:`~pointsift.methods.lagpairs.LagPairScreen`, the
+    :class:`~pointsift.methods.variogram.VariogramAnalysis` (None when it
+    cannot be computed) and their ``run_info`` entries. Lag options are read
+    from the config when it has them (``lag_count``, ``lag_width``).
+    """
+    from .methods.lagpairs import screen_lag_pairs
+    from .methods.variogram import analyse_variogram
+
+    values = np.where(prepared.usable, detrended, np.nan)
+    basis = "values" if trend_info.get("method", "none") == "none" else f"residuals from the trend ({trend_info['method']})"
+    lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=config.seed)
+    info = {"lag_pairs": {"values": basis, **lag_screen.record}}
+    variogram = None
+    try:
+        variogram = analyse_variogram(
+            prepared.xy, values, lag_count=getattr(config, "lag_count", None),
+            lag_width=getattr(config, "lag_width", None), seed=config.seed,
+        )
+        info["variogram"] = {"values": basis, **variogram.run_info()}
+    except InputError as exc:
+        info["variogram"] = {"values": basis, "note": f"no variogram: {exc}"}
+    return lag_screen, variogram, info
+
+
+def _lag_pair_reasons(lag_screen) -> np.ndarray:
+    from .methods.lagpairs import lag_pair_reasons
+
+    return lag_pair_reasons(lag_screen)
+
+
+def _spatial_tables(lag_screen, variogram, prepared: Prepared) -> dict:
+    """The ``lag_pairs`` line layer (work CRS) and the ``variogram`` table."""
+    from .methods.lagpairs import lag_pairs_layer
+
+    tables = {"lag_pairs": lag_pairs_layer(lag_screen, prepared.xy, crs=prepared.work_crs)}
+    if variogram is not None:
+        tables["variogram"] = variogram.table
+    return tables
+
+
 def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: SourceInfo | None = None) -> ScreenResult:
     """Screen a point layer.
 
@@ -239,13 +282,17 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     )
     timings["local_autocorrelation_s"] = time.perf_counter() - t
 
+    t = time.perf_counter()
+    lag_screen, variogram, spatial_info = _lag_pairs_and_variogram(prepared, detrended, trend_info, config)
+    timings["lag_pairs_variogram_s"] = time.perf_counter() - t
+
     coincident = coincident_conflicts(
         prepared.values,
         prepared.coincident,
         local.z,
         local.scale,
         value_tolerance=config.coincident_value_tolerance,
-        decisive_z=config.review_z,
+        decisive_z=2.0,
     )
     farthest = np.where(graph.mask, graph.distances, -np.inf).max(axis=1, initial=-np.inf)
     farthest = np.where(np.isfinite(farthest), farthest, np.nan)
@@ -264,6 +311,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         autocorr=autocorr,
         coincident=coincident,
         config=config,
+        supporting=(_lag_pair_reasons(lag_screen),),
     )
     timings["verdict_s"] = time.perf_counter() - t
 
@@ -293,7 +341,6 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
 
     counts = {status: int((added["screen_status"] == status).sum()) for status in STATUSES}
     timings["total_s"] = time.perf_counter() - started
-    knots, knot_scale = local.distance_model
     run_info = {
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "input_path": source.path if source else None,
@@ -315,8 +362,15 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "min_neighbours": config.min_neighbours,
         },
         "distance_scale": {
-            "distance_m": [round(float(np.exp(k)), 3) for k in knots],
-            "robust_sd": [round(float(s), 6) for s in knot_scale],
+            name: {
+                "distance_m": [round(float(np.exp(k)), 3) for k in knots],
+                "robust_sd": [round(float(s), 6) for s in knot_scale],
+            }
+            for name, (knots, knot_scale) in local.distance_model.items()
+        },
+        "predictor": {
+            "local_plane": int((screened & ~local.quadratic_used).sum()),
+            "local_quadratic": int((screened & local.quadratic_used).sum()),
         },
         "trend": trend_info,
         "local_autocorrelation": {
@@ -326,6 +380,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "p_adjustment": "Benjamini-Hochberg",
             "fdr": config.fdr,
         },
+        **spatial_info,
         "parameters": config.as_record(),
         "counts": counts,
         "notes": list(prepared.notes),
@@ -337,12 +392,12 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         frame=out,
         counts=counts,
         run_info=run_info,
-        tables={},
+        tables=_spatial_tables(lag_screen, variogram, prepared),
         prepared=prepared,
         graph=graph,
         local=local,
         autocorr=autocorr,
-        artefacts={"coincident": coincident, "detrended": detrended},
+        artefacts={"coincident": coincident, "detrended": detrended, "lag_pairs": lag_screen, "variogram": variogram},
     )
 
 

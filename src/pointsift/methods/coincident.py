@@ -24,7 +24,7 @@ def coincident_conflicts(
     scale: np.ndarray,
     *,
     value_tolerance: float | None = None,
-    decisive_z: float = 3.5,
+    decisive_z: float = 2.0,
     margin: float = 2.0,
 ) -> pd.DataFrame:
     """Judge records that share a spot.
@@ -40,8 +40,10 @@ def coincident_conflicts(
         Standardized local residual and its scale per row (twins excluded
         from each other's predictions).
     value_tolerance : float, optional
-        Records differing by more than this disagree. Default: 3 times the
-        local residual scale of the record.
+        Records differing by more than this disagree. Default: the local
+        residual scale of the record (the spread expected between a value and
+        its neighbours; two records of one well at one time should differ by
+        less than that).
     decisive_z : float
         A record is contradicted by its neighbours when its |z| reaches this
         and exceeds its twin's by ``margin``.
@@ -75,7 +77,7 @@ def coincident_conflicts(
     far_is_max = (gmax - v) >= (v - gmin)
     diff = np.where(far_is_max, gmax - v, v - gmin)
     other = np.where(far_is_max, row_of_max, row_of_min)
-    tol = scale[rows] * 3.0 if value_tolerance is None else np.full(rows.size, float(value_tolerance))
+    tol = scale[rows] * 1.0 if value_tolerance is None else np.full(rows.size, float(value_tolerance))
     tol = np.where(np.isfinite(tol), tol, 0.0)
     single = size < 2
     disagree = ~single & (diff > tol)

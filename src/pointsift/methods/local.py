@@ -77,8 +77,11 @@ class LocalResult:
         The coherent test passed through the quadratic.
     excluded : ndarray of bool
         Points removed as neighbours in the second pass (gross, not echoed).
-    distance_model : tuple of ndarray
-        (log distance knots, scale at knots) of the distance scale.
+    distance_model : dict
+        For "plane" and "quadratic": (log distance knots, robust scale at
+        the knots) of the distance scale.
+    quadratic_used : ndarray of bool
+        The quadratic was the predictor (it predicts better at this spacing).
     """
 
     expected: np.ndarray
@@ -92,7 +95,8 @@ class LocalResult:
     coherent: np.ndarray
     explained_by_curvature: np.ndarray
     excluded: np.ndarray
-    distance_model: tuple[np.ndarray, np.ndarray]
+    distance_model: dict
+    quadratic_used: np.ndarray
 
 
 def _bisquare(u: np.ndarray) -> np.ndarray:
@@ -157,6 +161,7 @@ class PlaneFit:
     quadratic: np.ndarray
     quadratic_leverage: np.ndarray
     curvature: np.ndarray
+    quadratic_fit_scale: np.ndarray
 
 
 def robust_plane_predict(
@@ -245,12 +250,18 @@ def robust_plane_predict(
     quadratic = np.where(enough, qcoef[:, 0], np.nan)
     curvature = np.where(enough, qcoef[:, 3] + qcoef[:, 5], np.nan)
     qleverage = np.where(enough, qleverage, np.nan)
+    qresid = v - (quad @ qcoef[:, :, None])[:, :, 0]
+    qdof = np.maximum(count - 6, 1)
+    qfit_scale = _MAD_TO_SD * _masked_median(np.abs(qresid), mask & (w > 0)) * np.sqrt(count / qdof)
+    qfit_scale = np.where(enough, np.maximum(qfit_scale, floor), np.nan)
 
     expected = np.where(ok, coef[:, 0], np.nan)
     fit_scale = np.where(ok, np.maximum(fit_scale, floor), np.nan)
     leverage = np.where(ok, leverage, np.nan)
     distance = np.where(ok, length, np.nan)
-    return PlaneFit(expected, fit_scale, leverage, np.where(ok, count, 0), distance, quadratic, qleverage, curvature)
+    return PlaneFit(
+        expected, fit_scale, leverage, np.where(ok, count, 0), distance, quadratic, qleverage, curvature, qfit_scale
+    )
 
 
 def _pool_adjacent_violators(y: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -309,7 +320,7 @@ def distance_scale(distance: np.ndarray, innovation: np.ndarray, *, min_per_bin:
 
 def neighbour_echo(z: np.ndarray, graph: NeighbourGraph, threshold: float) -> np.ndarray:
     """Share of each point's neighbours whose standardized residual has the
-    same sign and exceeds ``threshold`` in size.
+    same sign and exceeds both ``threshold`` and a quarter of the point's own.
 
     A lone wrong value has neighbours that fit (echo near 0); a well in a
     pumping cone or a valley floor has neighbours that deviate alike.
@@ -317,39 +328,67 @@ def neighbour_echo(z: np.ndarray, graph: NeighbourGraph, threshold: float) -> np
     idx = graph.indices
     mask = graph.mask
     zn = np.where(mask, z[np.where(mask, idx, 0)], np.nan)
-    same = (np.sign(zn) == np.sign(z)[:, None]) & (np.abs(zn) >= threshold)
+    # a neighbour echoes a deviation when it goes the same way by at least
+    # ``threshold`` and by at least a quarter as much (a decimal slip is not
+    # echoed by a neighbour that is merely a little high)
+    needed = np.maximum(threshold, 0.25 * np.abs(z))[:, None]
+    same = (np.sign(zn) == np.sign(z)[:, None]) & (np.abs(zn) >= needed)
     count = (mask & np.isfinite(zn)).sum(axis=1)
     with np.errstate(all="ignore"):
         return np.where(count > 0, same.sum(axis=1) / count, np.nan)
+
+
+def _pooled_scale(fit_scale, count, params, distance, innovation, local_df, prior_df):
+    """Unit residual scale: the local fit scale pooled with the distance scale."""
+    knots, knot_scale = distance_scale(distance, innovation)
+    with np.errstate(all="ignore"):
+        global_scale = np.interp(np.log(distance), knots, knot_scale)
+        nu_local = np.maximum(count - params, 1) * (local_df / 7.0)
+        unit = np.sqrt((nu_local * fit_scale**2 + prior_df * global_scale**2) / (nu_local + prior_df))
+    return unit, global_scale, (knots, knot_scale)
 
 
 def _one_pass(xy, values, graph, min_neighbours, local_df, prior_df):
     fit = robust_plane_predict(xy, values, graph, min_neighbours=min_neighbours)
     residual = values - fit.expected
     inflation = np.sqrt(1.0 + fit.leverage)
-    knots, knot_scale = distance_scale(fit.distance, residual / inflation)
+    unit, global_plane, model = _pooled_scale(
+        fit.fit_scale, fit.count, 3, fit.distance, residual / inflation, local_df, prior_df
+    )
+    q_residual = values - fit.quadratic
+    q_inflation = np.sqrt(1.0 + fit.quadratic_leverage)
+    q_unit, global_quad, q_model = _pooled_scale(
+        fit.quadratic_fit_scale, fit.count, 6, fit.distance, q_residual / q_inflation, local_df, prior_df
+    )
     with np.errstate(all="ignore"):
-        global_scale = np.interp(np.log(fit.distance), knots, knot_scale)
-        nu_local = np.maximum(fit.count - 3, 1) * (local_df / 7.0)
-        unit = np.sqrt((nu_local * fit.fit_scale**2 + prior_df * global_scale**2) / (nu_local + prior_df))
-        scale = unit * inflation
-        z = residual / scale
-        curved_z = (values - fit.quadratic) / (unit * np.sqrt(1.0 + fit.quadratic_leverage))
-    return fit, residual, scale, z, curved_z, (knots, knot_scale)
+        plane_scale = unit * inflation
+        quad_scale = q_unit * q_inflation
+        plane_z = residual / plane_scale
+        quad_z = q_residual / quad_scale
+        # the predictor that misses least at this spacing, judged over all
+        # points: the plane where noise dominates (dense wells), the quadratic
+        # where a smooth surface is sampled sparsely
+        use_quad = np.isfinite(quad_z) & (global_quad * q_inflation < 0.9 * global_plane * inflation)
+        expected = np.where(use_quad, fit.quadratic, fit.expected)
+        scale = np.where(use_quad, quad_scale, plane_scale)
+        z = np.where(use_quad, quad_z, plane_z)
+        residual = values - expected
+        # the other surface, for the coherence test
+        alternative_z = np.where(use_quad, plane_z, quad_z)
+        alternative_residual = np.where(use_quad, values - fit.expected, q_residual)
+    curved_z = (alternative_z, alternative_residual)
+    return fit, expected, residual, scale, z, curved_z, use_quad, {"plane": model, "quadratic": q_model}
 
 
-def _curved_residual(values, fit):
-    return values - fit.quadratic
-
-
-def _coherent(z, curved_z, curvature, echo, echo_share, curve_z, plane_residual, curved_residual):
-    """A deviation the neighbours share: echoed by them, or predicted by the
-    curvature of their own surface bending the same way (a bowl for a low
-    value, a dome for a high one) and accounting for at least half of it."""
-    bends_along = np.sign(curvature) == -np.sign(z)
+def _coherent(z, residual, alternative_z, alternative_residual, use_quad, curvature, echo, echo_share, curve_z):
+    """A deviation the neighbours share: echoed by them, or explained by the
+    other local surface (the quadratic bending the same way, a bowl for a low
+    value and a dome for a high one; or the plane where the quadratic
+    overshoots), which must account for at least half of it."""
+    bends_along = np.where(use_quad, True, np.sign(curvature) == -np.sign(z))
     with np.errstate(invalid="ignore"):
-        most = np.abs(curved_residual) <= 0.5 * np.abs(plane_residual)
-    explained = np.isfinite(curved_z) & (np.abs(curved_z) < curve_z) & bends_along & most
+        most = np.abs(alternative_residual) <= 0.5 * np.abs(residual)
+        explained = np.isfinite(alternative_z) & (np.abs(alternative_z) < curve_z) & bends_along & most
     return (echo >= echo_share) | explained, explained
 
 
@@ -361,7 +400,7 @@ def local_residuals(
     min_neighbours: int = 4,
     gross_z: float = 6.0,
     echo_z: float = 2.0,
-    echo_share: float = 0.34,
+    echo_share: float = 0.2,
     curve_z: float = 3.0,
     local_df: float = 7.0,
     prior_df: float = 8.0,
@@ -396,25 +435,33 @@ def local_residuals(
     LocalResult
     """
     values = np.asarray(values, dtype=float)
-    fit, residual1, _, z1, curved1, _ = _one_pass(xy, values, graph, min_neighbours, local_df, prior_df)
+    fit, _, residual1, _, z1, (alt_z1, alt_res1), use_quad1, _ = _one_pass(
+        xy, values, graph, min_neighbours, local_df, prior_df
+    )
     echo1 = neighbour_echo(z1, graph, echo_z)
-    coherent1, _ = _coherent(z1, curved1, fit.curvature, echo1, echo_share, curve_z, residual1, _curved_residual(values, fit))
+    coherent1, _ = _coherent(z1, residual1, alt_z1, alt_res1, use_quad1, fit.curvature, echo1, echo_share, curve_z)
     excluded = np.isfinite(z1) & (np.abs(z1) >= gross_z) & ~coherent1
     graph_used = graph.restrict(np.isfinite(values) & ~excluded) if excluded.any() else graph
-    fit, residual, scale, z, curved_z, model = _one_pass(xy, values, graph_used, min_neighbours, local_df, prior_df)
+    fit, expected, residual, scale, z, curved_z, use_quad, model = _one_pass(
+        xy, values, graph_used, min_neighbours, local_df, prior_df
+    )
     echo = neighbour_echo(z, graph_used, echo_z)
-    coherent, explained = _coherent(z, curved_z, fit.curvature, echo, echo_share, curve_z, residual, _curved_residual(values, fit))
+    alternative_z, alternative_residual = curved_z
+    coherent, explained = _coherent(
+        z, residual, alternative_z, alternative_residual, use_quad, fit.curvature, echo, echo_share, curve_z
+    )
     return LocalResult(
-        expected=fit.expected,
+        expected=expected,
         residual=residual,
         scale=scale,
         z=z,
         neighbour_count=fit.count,
         neighbour_distance=fit.distance,
         echo=echo,
-        curved_z=curved_z,
+        curved_z=alternative_z,
         coherent=coherent,
         explained_by_curvature=explained,
         excluded=excluded,
         distance_model=model,
+        quadratic_used=use_quad,
     )

@@ -64,7 +64,7 @@ def repair_candidates(value: float) -> list[tuple[float, str]]:
     >>> [round(v, 4) for v, _ in repair_candidates(28.53)][:4]
     [285.3, 2.853, 2853.0, 0.2853]
     >>> sorted(round(v, 2) for v, text in repair_candidates(258.3) if "transposed" in text)
-    [285.3, 528.3]
+    [253.8, 285.3, 528.3]
     """
     out = [
         (value * 10.0, "decimal point one place off (x 10)"),
