@@ -71,7 +71,7 @@ def test_defaults_are_the_documented_ones():
         ({"k": 5, "min_neighbours": 6}, r"min_neighbours \(6\) cannot exceed k \(5\)"),
         ({"permutations": 10}, r"permutations must be a whole number from 99 to 100000, got 10"),
         ({"fdr": 1.0}, r"fdr must be between 0 and 1, got 1\.0"),
-        ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(5\.0\)"),
+        ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(4\.0\)"),
         ({"coincident_tolerance": -1.0}, r"coincident_tolerance must be zero or positive, got -1\.0"),
         ({"max_distance": 0.0}, r"max_distance must be positive, got 0\.0"),
         ({"coincident_value_tolerance": -2.0}, r"coincident_value_tolerance must be positive, got -2\.0"),
