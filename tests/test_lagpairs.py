@@ -362,3 +362,38 @@ def test_dominance_equals_a_set_count():
             assert got == pytest.approx(len(own) / len(around))
         else:
             assert math.isnan(got)
+
+
+def test_distance_scale_divides_differences_before_the_band():
+    rng = np.random.default_rng(6)
+    xy = rng.uniform(0, 300, (500, 2))
+    values = rng.normal(size=500)
+
+    def scale(h):
+        return 1.0 + np.asarray(h) / 10.0
+
+    screen = screen_lag_pairs(xy, values, distance_scale=scale)
+    j = screen.directions.index(45.0)
+    sel = screen.direction_member[:, j] & (screen.lag_index == 0)
+    u = (values[screen.pairs.head[sel]] - values[screen.pairs.tail[sel]]) / scale(screen.pairs.distance[sel])
+    # reference: numpy median and scipy's normal-consistent MAD of the scaled differences
+    centre = np.median(u)
+    mad = scipy.stats.median_abs_deviation(u, scale="normal")
+    np.testing.assert_allclose(screen.pair_z[sel, j], (u - centre) / mad, rtol=1e-12)
+    row = screen.classes[(screen.classes["direction"] == "45") & (screen.classes["lag"] == 1)].iloc[0]
+    assert row["median_separation"] == pytest.approx(np.median(screen.pairs.distance[sel]))
+    assert screen.record["distance_scale"] == "given"
+    with pytest.raises(ConfigError, match="distance_scale"):
+        screen_lag_pairs(xy, values, distance_scale="variogram")
+
+
+def test_empirical_distance_scale_recovers_a_growing_spread():
+    from pointsift.methods.lagpairs import _empirical_distance_scale
+
+    rng = np.random.default_rng(2)
+    h = rng.uniform(1, 100, 20_000)
+    diff = rng.normal(0, 1, h.size) * (0.5 + 0.05 * h)  # known sd 0.5 + 0.05 h
+    got = _empirical_distance_scale(h, diff, np.ones(h.size, bool))
+    inner = (h > 10) & (h < 90)
+    np.testing.assert_allclose(got[inner], 0.5 + 0.05 * h[inner], rtol=0.12)
+    assert np.all(np.diff(got[np.argsort(h)]) >= 0)

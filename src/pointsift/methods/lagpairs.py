@@ -74,6 +74,8 @@ DEFAULT_PAIR_BUDGET = 20_000_000
 # are subsampled first: enumerating every pair only to thin it would cost
 # time in proportion to all pairs in reach.
 _POINT_SAMPLING_FACTOR = 2.0
+# Pairs per separation bin of the empirical distance scale.
+_SCALE_BIN_PAIRS = 200
 # Query points used to measure the point spacing of a large set.
 _SPACING_SAMPLE = 200_000
 # Points counted to estimate the pairs in reach of a large set.
@@ -438,8 +440,9 @@ class LagPairScreen:
         scales) and ``lagpair_culprit`` (bool: the point is the likely culprit).
     classes : pandas.DataFrame
         One row per direction and lag class: ``direction``, ``lag``,
-        ``lag_low``, ``lag_high``, ``pairs``, ``band_centre``, ``band_scale``,
-        ``flagged``, ``screened``.
+        ``lag_low``, ``lag_high``, ``pairs``, ``median_separation``,
+        ``band_centre``, ``band_scale`` (value units, at the median
+        separation), ``flagged``, ``screened``.
     pairs : PairSet
         The pairs searched.
     lag_index : ndarray of int
@@ -539,6 +542,35 @@ class LagPairScreen:
         }
 
 
+def _empirical_distance_scale(distance: np.ndarray, diff: np.ndarray, use: np.ndarray) -> np.ndarray:
+    """Typical size of a pair difference as a function of separation, from the pairs themselves.
+
+    The pairs in ``use`` are split into separation bins of equal count (about
+    200 pairs each, 4 to 30 bins); each bin's scale is ``median(|d|) /
+    0.6745`` (the standard deviation for normal differences centred on 0);
+    the scale at a separation is interpolated between bin medians, held
+    constant beyond them, and never falls with distance (a variogram does
+    not). Returns ones when there are too few pairs or the scale is 0.
+    """
+    ok = use & np.isfinite(diff)
+    out = np.ones(distance.size)
+    if ok.sum() < 4 * _SCALE_BIN_PAIRS // 2:
+        return out
+    h, a = distance[ok], np.abs(diff[ok])
+    order = np.argsort(h, kind="stable")
+    h, a = h[order], a[order]
+    bins = int(np.clip(h.size // _SCALE_BIN_PAIRS, 4, 30))
+    parts = np.array_split(np.arange(h.size), bins)
+    centres = np.array([np.median(h[p]) for p in parts])
+    scales = np.array([np.median(a[p]) for p in parts]) / _NORMAL_Q75
+    scales = np.maximum.accumulate(scales)
+    if not scales[-1] > 0:
+        return out
+    # a zero scale at short range (identical values) would divide by zero: floor it
+    scales = np.maximum(scales, scales[-1] * 1e-3)
+    return np.interp(distance, centres, scales)
+
+
 def _robust_centre_scale(diff: np.ndarray) -> tuple[float, float]:
     centre = float(np.median(diff))
     scale = float(np.median(np.abs(diff - centre))) / _NORMAL_Q75
@@ -563,16 +595,18 @@ def screen_lag_pairs(
     min_flagged: int = 2,
     culprit_share: float = 0.25,
     culprit_dominance: float = 0.5,
+    distance_scale=None,
     pair_budget: int = DEFAULT_PAIR_BUDGET,
     seed: int = 0,
 ) -> LagPairScreen:
     """Screen pairs of points by lag and direction, and attribute outlying pairs to points.
 
     For each direction and lag class the differences ``head - tail`` of the
-    pairs in it define a robust band around the 1:1 line of the pair cloud
-    (centre: median difference; scale: MAD / 0.6745, or IQR / 1.349 when the
-    MAD is 0). A pair is flagged when ``|difference - centre| > threshold *
-    scale`` in any of its classes. Each point gets the count and share of its
+    pairs in it, each divided by the expected size of a difference at its
+    separation (``distance_scale``), define a robust band around the 1:1 line
+    of the pair cloud (centre: median; scale: MAD / 0.6745, or IQR / 1.349
+    when the MAD is 0). A pair is flagged when it lies more than
+    ``threshold`` scales from the centre in any of its classes. Each point gets the count and share of its
     pairs that are flagged, and its *dominance*: the share of the flagged
     pairs around it (those with an end at the point or at one of its
     partners) that it is in. A wrong value is in nearly every flagged pair
@@ -618,6 +652,16 @@ def screen_lag_pairs(
         Share of a point's pairs that must be flagged for it to be the culprit.
     culprit_dominance : float
         Least share of the flagged pairs around a point that it must be in.
+    distance_scale : {None, "empirical"} or callable
+        How the expected size of a difference grows with separation within a
+        class: None (default) treats every pair of a class alike (the plain
+        h-scatterplot band); ``"empirical"`` estimates it from the pairs
+        (robust scale in separation bins of equal count, never falling with
+        distance); a function of separation (for example
+        :meth:`pointsift.methods.variogram.NeighbourhoodHint.difference_sd`
+        of a trustworthy variogram) gives it. Differences are divided
+        by it before the band is set, so the class's own robust scale still
+        sets the width.
     pair_budget : int
         Passed to :func:`find_pairs`.
     seed : int
@@ -660,6 +704,22 @@ def screen_lag_pairs(
     for k, (lo, hi) in enumerate(edges):
         lag_index[(d > lo) & (d <= hi)] = k
     diff = values[pairs.head] - values[pairs.tail]
+    in_class = lag_index >= 0
+    if distance_scale is None:
+        pair_scale = np.ones(pairs.size)
+        scale_note = "none"
+    elif callable(distance_scale):
+        pair_scale = np.asarray(distance_scale(d), dtype=float)
+        scale_note = "given"
+    elif distance_scale == "empirical":
+        pair_scale = _empirical_distance_scale(d, diff, in_class)
+        scale_note = "empirical"
+    else:
+        raise ConfigError(
+            f"distance_scale {distance_scale!r} is not known; pass 'empirical', None or a function of separation."
+        )
+    with np.errstate(invalid="ignore", divide="ignore"):
+        standard = np.where(pair_scale > 0, diff / pair_scale, np.nan)
     member = np.zeros((pairs.size, len(directions)), dtype=bool)
     pair_z = np.full((pairs.size, len(directions)), np.nan)
     rows = []
@@ -667,21 +727,25 @@ def screen_lag_pairs(
         with np.errstate(invalid="ignore"):
             member[:, j] = (axial_difference(pairs.azimuth, direction) <= angle_tolerance) & (lag_index >= 0)
         for k, (lo, hi) in enumerate(edges):
-            sel = np.flatnonzero(member[:, j] & (lag_index == k))
-            centre = scale = float("nan")
+            sel = np.flatnonzero(member[:, j] & (lag_index == k) & np.isfinite(standard))
+            centre = scale = median_h = float("nan")
             screened = False
             flagged_count = 0
             if sel.size >= min_class_pairs:
-                centre, scale = _robust_centre_scale(diff[sel])
+                centre, scale = _robust_centre_scale(standard[sel])
                 if scale > 0:
                     screened = True
-                    z = (diff[sel] - centre) / scale
+                    z = (standard[sel] - centre) / scale
                     pair_z[sel, j] = z
                     flagged_count = int((np.abs(z) > threshold).sum())
+                # the band in value units, at the class's median separation
+                median_h = float(np.median(d[sel]))
+                at_median = float(np.median(pair_scale[sel]))  # the scale grows with separation
+                centre, scale = centre * at_median, scale * at_median
             rows.append({
                 "direction": direction_label(direction), "lag": k + 1, "lag_low": float(lo),
-                "lag_high": float(hi), "pairs": int(sel.size), "band_centre": centre,
-                "band_scale": scale, "flagged": flagged_count, "screened": screened,
+                "lag_high": float(hi), "pairs": int(sel.size), "median_separation": median_h,
+                "band_centre": centre, "band_scale": scale, "flagged": flagged_count, "screened": screened,
             })
     screened_pair = np.isfinite(pair_z).any(axis=1)
     with np.errstate(invalid="ignore"):
@@ -748,6 +812,7 @@ def screen_lag_pairs(
             "min_flagged": int(min_flagged),
             "culprit_share": float(culprit_share),
             "culprit_dominance": float(culprit_dominance),
+            "distance_scale": scale_note,
         },
     )
 
@@ -904,6 +969,7 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
         ax.set_xlabel("value at tail")
         if k == 0:
             ax.set_ylabel("value at head")
-    fig.suptitle(f"Lag pairs, {name} (tail to head azimuth {direction:g} +/- {screen.angle_tolerance:g} deg)",
-                 fontsize=10)
+    scaled = screen.settings.get("distance_scale", "none") != "none"
+    fig.suptitle(f"Lag pairs, {name} (tail to head azimuth {direction:g} +/- {screen.angle_tolerance:g} deg)"
+                 + ("; band drawn at each class's median separation" if scaled else ""), fontsize=10)
     return fig
