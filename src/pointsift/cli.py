@@ -302,7 +302,7 @@ def _echo_description(description, value_column: str, where: str) -> None:
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 @click.option("--strips", "directions", default="90,0", callback=_parse_directions, help="Strip directions: azimuths in degrees along which strips run, comma-separated; 90 west-east, 0 south-north (default 90,0).")
 @click.option("--strip-width", type=LENGTH, default=None, help="Strip width, e.g. 500m (default: from the point density).")
-@click.option("--min-strip-points", type=click.IntRange(5, None), default=5, help="Smaller strips are too small to judge (default 4).")
+@click.option("--min-strip-points", type=click.IntRange(5, None), default=5, help="Smaller strips are too small to judge (default 5).")
 @click.option("--stem-unit", type=click.FloatRange(min=0, min_open=True), default=None, help="Stem unit of the stem-and-leaf display, a power of ten (default: chosen).")
 @click.option("--stem-split", type=click.Choice(["1", "2", "5"]), default=None, help="Lines per stem (default: chosen).")
 @click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")

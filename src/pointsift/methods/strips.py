@@ -87,6 +87,7 @@ __all__ = [
     "build_null_table",
     "plot_strip_profiles",
     "flagged_strip_evidence",
+    "direction_words",
     "DEFAULT_DIRECTIONS",
     "MIN_STRIP_N",
     "FLAG_U",
@@ -648,7 +649,8 @@ def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
     return out.astype(str)
 
 
-def _direction_words(direction: float) -> str:
+def direction_words(direction: float) -> str:
+    """Plain words for a strip family, e.g. ``"west-east strips, numbered south to north"``."""
     if direction == 90.0:
         return "west-east strips, numbered south to north"
     if direction == 0.0:
@@ -697,7 +699,7 @@ def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value", flag_u: fl
         if flagged.any():
             ax.scatter(pos[flagged], part["mean"][flagged], facecolor="none", edgecolor="#c0392b", s=90, lw=1.5,
                        zorder=4, label=f"|u| > {flag_u:g}")
-        ax.set_title(f"{_direction_words(float(direction))} (width {float(part['width'].iloc[0]):g} m)", fontsize=10)
+        ax.set_title(f"{direction_words(float(direction))} (width {float(part['width'].iloc[0]):g} m)", fontsize=10)
         ax.set_xlabel("across position of strip centre (km from first strip edge)")
         ax.set_ylabel(label)
         ax.legend(fontsize=8, loc="best")
