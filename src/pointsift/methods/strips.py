@@ -427,7 +427,7 @@ def _one_direction(xy, values, rows, direction, width, min_n, flag_u):
     a = xy @ along_axis
     origin = math.floor(s.min() / width) * width
     label = np.floor((s - origin) / width).astype(np.int64)
-    # Rounding can push a point sitting on the last edge one strip too far.
+    # (s - origin) can come out a hair below zero through rounding; that point belongs to strip 0.
     label = np.clip(label, 0, None)
     n_strips = int(label.max()) + 1
 
