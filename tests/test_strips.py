@@ -83,6 +83,8 @@ def test_interpolated_and_asymptotic_sizes(n):
 def test_calibrate_u_is_odd_monotone_and_keeps_nan():
     t = np.linspace(-3, 3, 61)
     u = calibrate_u(t, 12)
+    # T is symmetric about 0 under the Gaussian null (mean - median changes sign with the data), so a
+    # quantile mapping of it must be odd and strictly increasing.
     np.testing.assert_allclose(u, -u[::-1])
     assert np.all(np.diff(u) > 0)
     assert np.isnan(calibrate_u(np.nan, 12))
