@@ -4,11 +4,9 @@ Outputs are read back with pyogrio (an independent reader) and checked against
 published figures (meuse zinc) and pandas recomputations.
 """
 
-from pathlib import Path
 
 import geopandas as gpd
 import numpy as np
-import pandas as pd
 import pyogrio
 import pytest
 import shapely
