@@ -1,8 +1,11 @@
 """Shared fixtures: tiny invented point layers built in code and written to tmp_path.
 
 Nothing here is real data. A "well field" is a regional plane (the general
-gradient of a water table) plus independent normal noise, with points placed
-uniformly at random in a square of projected metres (UTM zone 33N, EPSG:32633).
+gradient of a water table), a gentle smooth undulation and independent normal
+noise, with points placed uniformly at random in a square of projected metres
+(UTM zone 33N, EPSG:32633). The undulation gives the layer spatial structure,
+as real water levels have (a pure plane plus white noise leaves nothing for the
+variogram fits of the screen but a nugget, which they fit slowly).
 """
 
 from __future__ import annotations
@@ -31,17 +34,18 @@ def build_wells(
     noise: float = 0.2,
     gradient: tuple[float, float] = (0.01, -0.004),
     base: float = 200.0,
+    wave: float = 1.0,
     crs: str | None = METRIC_CRS,
 ) -> gpd.GeoDataFrame:
     """An invented well layer: ``well_id`` (text), ``level_m`` (float),
     ``aquifer`` (text), ``depth_m`` (int64), ``sampled`` (text date), point geometry.
 
-    ``level_m = base + gx * x + gy * y + N(0, noise)`` with x, y in metres from
-    the south-west corner of the square.
+    ``level_m = base + gx * x + gy * y + wave * sin(x / 700) * cos(y / 900) + N(0, noise)``
+    with x, y in metres from the south-west corner of the square.
     """
     rng = np.random.default_rng(seed)
     x, y = rng.uniform(0.0, extent, (2, n))
-    level = base + gradient[0] * x + gradient[1] * y + rng.normal(0.0, noise, n)
+    level = base + gradient[0] * x + gradient[1] * y + wave * np.sin(x / 700) * np.cos(y / 900) + rng.normal(0.0, noise, n)
     return gpd.GeoDataFrame(
         {
             "well_id": [f"W{i:04d}" for i in range(n)],
