@@ -1,0 +1,183 @@
+"""The screening pipeline end to end on invented layers (no files)."""
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pytest
+import shapely
+from conftest import ORIGIN, build_wells, to_lonlat
+from scipy import stats
+from scipy.spatial.distance import cdist
+
+from pointsift import screen
+from pointsift.config import ScreenConfig
+from pointsift.errors import InputError
+from pointsift.pipeline import ADDED_COLUMNS, automatic_max_distance, screen_frame
+from pointsift.verdict import STATUSES
+
+FAST = {"permutations": 99}
+
+
+def test_screen_returns_the_input_rows_and_columns_plus_the_added_ones():
+    wells = build_wells(150, seed=11)
+    before = wells.copy()
+    out = screen(wells, value="level_m", id="well_id", **FAST)
+    pd.testing.assert_frame_equal(wells, before)  # the input is not modified
+    assert list(out.columns) == list(wells.columns) + list(ADDED_COLUMNS)
+    # every input column kept exactly: names, values, row count, row order, index, CRS
+    pd.testing.assert_frame_equal(out[list(wells.columns)], wells)
+    assert out.crs.equals(wells.crs)
+    assert set(out["screen_status"]) <= set(STATUSES)
+    assert out["screen_reasons"].map(lambda s: isinstance(s, str) and len(s) > 0).all()
+
+
+def test_geographic_input_comes_back_in_its_own_crs():
+    wells = to_lonlat(build_wells(120, seed=12))
+    result = screen_frame(wells, ScreenConfig(value="level_m", **FAST))
+    assert result.frame.crs.equals(wells.crs)
+    assert result.frame.geometry.geom_equals(wells.geometry).all()
+    info = result.run_info
+    assert info["input_crs"] == "EPSG:4326" and info["work_crs"] == "EPSG:32633"
+    assert any("Distances computed in WGS 84 / UTM zone 33N" in note for note in info["notes"])
+
+
+def test_added_column_name_colliding_with_an_input_column_is_an_error():
+    wells = build_wells(50, seed=13)
+    wells["screen_score"] = 1.0
+    wells["neighbour_count"] = 3
+    with pytest.raises(InputError, match=r"already has column\(s\) screen_score, neighbour_count .*Rename or drop them"):
+        screen(wells, value="level_m")
+
+
+def test_isolated_points_are_unscreened_with_why():
+    wells = build_wells(200, seed=14)
+    far = wells.iloc[[0, 1, 2]].copy()
+    far["well_id"] = ["FAR", "PAIR_A", "PAIR_B"]
+    # one well 60 km away, and a pair 40 km away (each other's only neighbour)
+    far = far.set_geometry(
+        [shapely.Point(ORIGIN[0] + 60_000, ORIGIN[1]), shapely.Point(ORIGIN[0], ORIGIN[1] + 40_000), shapely.Point(ORIGIN[0] + 300, ORIGIN[1] + 40_000)],
+        crs=wells.crs,
+    )
+    wells = pd.concat([wells, far], ignore_index=True)
+    result = screen_frame(wells, ScreenConfig(value="level_m", id="well_id", **FAST))
+    out = result.frame
+    assert len(out) == 203
+    limit = result.graph.max_distance
+    assert np.isfinite(limit) and limit < 40_000
+    assert out.loc[200, "screen_status"] == "unscreened"
+    assert out.loc[200, "screen_reasons"].startswith("no neighbour within ")
+    assert out.loc[200, "neighbour_count"] == 0
+    for row in (201, 202):
+        assert out.loc[row, "screen_status"] == "unscreened"
+        assert out.loc[row, "screen_reasons"].startswith("only 1 neighbour within ")
+        assert "too isolated to judge" in out.loc[row, "screen_reasons"]
+    assert (out.loc[:199, "screen_status"] != "unscreened").all()
+
+
+def test_explicit_max_distance_names_the_distance():
+    wells = build_wells(100, seed=15)
+    result = screen_frame(wells, ScreenConfig(value="level_m", max_distance=50.0, **FAST))
+    reasons = result.frame["screen_reasons"]
+    unscreened = result.frame["screen_status"] == "unscreened"
+    assert unscreened.sum() > 50
+    assert reasons[unscreened].str.contains(r"(?:no neighbour|only \d neighbours?) within 50 m").all()
+    assert (result.graph.distances[result.graph.mask] <= 50.0).all()
+
+
+def test_automatic_max_distance_is_the_far_fence_of_nearest_distances():
+    rng = np.random.default_rng(16)
+    xy = rng.uniform(0, 5000, (300, 2))
+    d = cdist(xy, xy)
+    np.fill_diagonal(d, np.inf)
+    logs = np.log(d.min(axis=1))
+    # Reference: Tukey's far fence (Q3 + 3 IQR) of log nearest-neighbour distance,
+    # with scipy.stats.iqr (linear percentiles) and a brute-force cdist.
+    q3 = np.percentile(logs, 75)
+    iqr = max(stats.iqr(logs), np.log(2.0))
+    assert automatic_max_distance(xy) == pytest.approx(np.exp(q3 + 3 * iqr), rel=1e-12)
+
+
+def test_no_usable_row_is_an_input_error():
+    wells = build_wells(20, seed=17)
+    wells["level_m"] = "dry"
+    with pytest.raises(InputError, match=r"No row of the layer has both a location and a value \(first reason: value 'dry' is not a number\)"):
+        screen(wells, value="level_m")
+
+
+def test_bad_rows_are_kept_unscreened_with_their_reasons():
+    wells = build_wells(120, seed=18)
+    level = wells["level_m"].astype(object)
+    level.iloc[[3, 4, 5]] = ["n/a", -9999.0, None]
+    wells["level_m"] = level
+    geometry = wells.geometry.copy()
+    geometry.iloc[6] = None
+    geometry.iloc[7] = shapely.Point()
+    geometry.iloc[8] = shapely.MultiPoint([(1, 2), (3, 4)])
+    wells = wells.set_geometry(geometry)
+    result = screen_frame(wells, ScreenConfig(value="level_m", **FAST))
+    out = result.frame
+    assert len(out) == 120 and list(out.index) == list(wells.index)
+    assert (out.loc[3:8, "screen_status"] == "unscreened").all()
+    assert out.loc[3:8, "screen_reasons"].tolist() == [
+        "value 'n/a' is not a number",
+        "no-data code -9999",
+        "no value (blank)",
+        "no location (no geometry)",
+        "no location (empty geometry)",
+        "location has 2 points (multi-part); split it into single points",
+    ]
+    assert out.loc[3:8, "screen_score"].isna().all()
+    # unscreened rows are nobody's neighbour
+    assert not np.isin(result.graph.indices, np.arange(3, 9)).any()
+
+
+def test_counts_and_run_record():
+    wells = build_wells(150, seed=19)
+    wells.loc[9, "level_m"] = -9999.0
+    result = screen_frame(wells, ScreenConfig(value="level_m", **FAST))
+    counts = result.frame["screen_status"].value_counts().to_dict()
+    assert result.counts == {s: counts.get(s, 0) for s in STATUSES}
+    assert result.run_info["counts"] == result.counts
+    assert sum(result.counts.values()) == 150 and result.counts["unscreened"] >= 1
+    assert result.run_info["parameters"]["value"] == "level_m"
+    assert result.run_info["rows"] == 150
+    assert "not determinations" in result.run_info["caution"]
+
+
+def test_planted_errors_found_and_pumping_cone_not_suspect():
+    # invented network: regional gradient, a pumping cone sampled by ~25 wells,
+    # three planted mistakes (decimal slip, feet entered as metres, a spike)
+    rng = np.random.default_rng(20)
+    gx, gy = np.meshgrid(np.arange(0, 6000, 200.0), np.arange(0, 6000, 200.0))
+    xy = np.column_stack([gx.ravel(), gy.ravel()]) + rng.uniform(-50, 50, (gx.size, 2))
+    dist = np.hypot(xy[:, 0] - 2500, xy[:, 1] - 3500)
+    cone = dist < 650
+    level = 150 + 0.002 * xy[:, 0] + 0.001 * xy[:, 1] - 6 * np.exp(-(dist**2) / (2 * 450**2)) + rng.normal(0, 0.05, len(xy))
+    level = np.round(level, 2)
+    planted = {100: level[100] * 10, 400: level[400] / 0.3048, 700: level[700] + 2.0}
+    for row, value in planted.items():
+        assert not cone[row]
+        level[row] = round(value, 2)
+    wells = gpd.GeoDataFrame({"level_m": level}, geometry=gpd.points_from_xy(xy[:, 0] + ORIGIN[0], xy[:, 1] + ORIGIN[1]), crs="EPSG:32633")
+    out = screen(wells, value="level_m", **FAST)
+    status = out["screen_status"].to_numpy()
+    assert (status[list(planted)] == "suspect").all()
+    # issue 2: at most 5 % of the pumping-cone wells called suspect, and <= 1 % of sound wells
+    assert cone.sum() >= 20
+    assert np.mean(status[cone] == "suspect") <= 0.05
+    sound = np.ones(len(xy), bool)
+    sound[list(planted)] = False
+    assert np.mean(status[sound] == "suspect") <= 0.01
+    assert "decimal" in out.loc[100, "screen_reasons"]
+
+
+@pytest.mark.slow
+def test_regional_gradient_alone_makes_no_clusters():
+    # issue 2: compute the cluster statistics on detrended values, or the gradient
+    # alone makes every point part of a cluster
+    wells = build_wells(400, seed=21, extent=8000, noise=0.3, wave=0.0, gradient=(0.005, 0.003))
+    detrended = screen_frame(wells, ScreenConfig(value="level_m", permutations=199)).frame
+    raw = screen_frame(wells, ScreenConfig(value="level_m", permutations=199, detrend="none")).frame
+    cluster = "part of a cluster"
+    assert raw["screen_reasons"].str.contains(cluster).mean() > 0.3
+    assert detrended["screen_reasons"].str.contains(cluster).mean() < 0.02
