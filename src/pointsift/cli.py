@@ -196,17 +196,36 @@ def _echo_result(result, top: int = 10) -> None:
 @screen_options
 @click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), help="Output GeoPackage (.gpkg).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
+@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
+@click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
 @click.pass_context
-def screen(ctx, input_path, out_path, overwrite, layer, x_column, y_column, **options):
+def screen(ctx, input_path, out_path, overwrite, layer, x_column, y_column, report_path=None, summary_json_path=None, **options):
     """Screen INPUT (GeoPackage, shapefile, CSV or GeoParquet) and write OUTPUT.gpkg
     with every input row plus screen_status, screen_score and screen_reasons."""
     from .run import screen_file
 
     config = config_from_options(options)
-    run = screen_file(input_path, out_path, config, layer=layer, x=x_column, y=y_column, overwrite=overwrite)
+    _check_report_paths(report_path, summary_json_path, overwrite)
+    run = screen_file(input_path, out_path, config, layer=layer, x=x_column, y=y_column, overwrite=overwrite,
+                      report_path=report_path, summary_json_path=summary_json_path)
     if not ctx.obj.get("quiet"):
         _echo_result(run.result)
         click.echo(f"Wrote {run.output_path} in {run.seconds:.1f} s.")
+        for path in run.extra_outputs.values():
+            click.echo(f"Wrote {path}.")
+
+
+def _check_report_paths(report_path, summary_json_path, overwrite: bool) -> None:
+    """Refuse to replace an existing report or summary without --overwrite (before any work is done)."""
+    import os
+
+    for option, path in (("--report", report_path), ("--summary-json", summary_json_path)):
+        if path is not None and os.path.exists(path) and not overwrite:
+            raise ConfigError(f"{option} {path!r} already exists. Pass --overwrite to replace it, or choose another name.")
+        if path is not None:
+            folder = os.path.dirname(os.path.abspath(path))
+            if not os.path.isdir(folder):
+                raise ConfigError(f"{option} {path!r}: folder {folder!r} does not exist. Create it first or choose another path.")
 
 
 def _number(value) -> str:
@@ -308,9 +327,12 @@ def _echo_description(description, value_column: str, where: str) -> None:
 @click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")
 @click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png and strips.png into.")
 @click.option("--with-screen", is_flag=True, help="Screen first, and also summarise without the suspect rows.")
+@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
+@click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
 @click.pass_context
 def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, directions, strip_width,
-             min_strip_points, stem_unit, stem_split, bin_width, figures_dir, with_screen, **options):
+             min_strip_points, stem_unit, stem_split, bin_width, figures_dir, with_screen, report_path=None,
+             summary_json_path=None, **options):
     """Describe INPUT: summary figures, stem-and-leaf display, strip statistics
     across the area and the regional trend. Reads INPUT exactly as 'screen' does."""
     import os
@@ -323,6 +345,8 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
     from .prepare import prepare
 
     config = config_from_options(options)
+    _check_report_paths(report_path, summary_json_path, overwrite)
+    result = None
     if figures_dir is not None and not Path(figures_dir).is_dir():
         raise ConfigError(f"--figures folder {figures_dir!r} does not exist. Create it first or choose another folder.")
     frame, source = read_points(input_path, layer=layer, x=x_column, y=y_column, crs=config.crs)
@@ -349,7 +373,7 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         stem_unit=stem_unit,
         split=int(stem_split) if stem_split else None,
         suspect_mask=suspects,
-        figures=figures_dir is not None,
+        figures=figures_dir is not None or report_path is not None,
         bin_width=bin_width,
         value_label=config.value,
     )
@@ -381,6 +405,36 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         written = write_geopackage(out_path, layers, overwrite=overwrite, protect=(os.fspath(input_path),))
         if not ctx.obj.get("quiet"):
             click.echo(f"Wrote {written} (layers {', '.join(layers)}).")
+    if report_path is not None or summary_json_path is not None:
+        from .report import build_report
+
+        if result is not None:
+            report = build_report(result, description=description)
+        else:
+            report = build_report(
+                prepared=prepared,
+                description=description,
+                run_info={
+                    "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+                    "input_path": source.path,
+                    "input_layer": source.layer,
+                    "input_format": source.driver,
+                    "input_sha256": source.sha256,
+                    "value_column": config.value,
+                    "id_column": config.id,
+                    "input_crs": prepared.input_crs.to_string(),
+                    "work_crs": prepared.work_crs.to_string(),
+                    "work_crs_name": prepared.work_crs.name,
+                    "output_path": out_path,
+                    "parameters": config.as_record(),
+                    "strip_widths_m": {f"{d:g}": w for d, w in description.strips.widths.items()},
+                    "trend": description.trend_info,
+                    "notes": list(prepared.notes),
+                },
+            )
+        for path in report.write(report_path, summary_json_path, protect=(os.fspath(input_path),)).values():
+            if not ctx.obj.get("quiet"):
+                click.echo(f"Wrote {path}.")
 
 
 def _batch_options(func):

@@ -77,6 +77,8 @@ def screen_file(
     overwrite: bool = False,
     frame_filter=None,
     source_note: str | None = None,
+    report_path=None,
+    summary_json_path=None,
 ) -> RunResult:
     """Read ``input_path``, screen it with ``config`` and write ``out_path``.
 
@@ -97,6 +99,10 @@ def screen_file(
         group with it); must return a GeoDataFrame.
     source_note : str, optional
         Recorded in ``run_info`` (for example the group screened).
+    report_path : path-like, optional
+        Also write the self-contained HTML report here (after the GeoPackage).
+    summary_json_path : path-like, optional
+        Also write the JSON summary (the report's numbers) here.
 
     Returns
     -------
@@ -111,6 +117,11 @@ def screen_file(
         result.run_info["group"] = source_note
     result.run_info["output_path"] = str(out_path)
     written = write_screen(result, out_path, overwrite=overwrite, protect=(os.fspath(input_path),))
+    extra = {}
+    if report_path is not None or summary_json_path is not None:
+        from .report import build_report
+
+        extra = build_report(result).write(report_path, summary_json_path, protect=(os.fspath(input_path), str(written)))
     return RunResult(
         input_path=os.fspath(input_path),
         layer=source.layer,
@@ -119,4 +130,5 @@ def screen_file(
         seconds=time.perf_counter() - started,
         input_sha256=source.sha256,
         result=result,
+        extra_outputs=extra,
     )

@@ -1,0 +1,225 @@
+"""The screening report: one self-contained HTML page and a JSON summary with the same numbers.
+
+:func:`build_report` takes a screen (:class:`~pointsift.pipeline.ScreenResult`)
+or a prepared layer from ``describe`` and returns a :class:`Report`: the page
+(:attr:`Report.html`) and the summary document (:attr:`Report.summary`,
+validated by ``summary.schema.json`` in this package). The page works
+offline and alone: figures are inline PNGs, styles and the small sorting
+script are inline, and nothing is fetched from a network.
+
+Examples
+--------
+>>> from pointsift.report import build_report            # doctest: +SKIP
+>>> report = build_report(result)                         # doctest: +SKIP
+>>> report.write("report.html", "summary.json")           # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+
+from ..errors import OutputError
+from .contents import SUMMARY_FORMAT, SUMMARY_VERSION, collect, flagged_rows
+from .html import render
+
+__all__ = [
+    "Report",
+    "build_report",
+    "load_summary_schema",
+    "validate_summary",
+    "flagged_rows",
+    "SUMMARY_FORMAT",
+    "SUMMARY_VERSION",
+    "SCHEMA_FILE",
+]
+
+#: File name of the JSON schema of the summary, inside this package.
+SCHEMA_FILE = "summary.schema.json"
+
+
+@dataclass
+class Report:
+    """A rendered report.
+
+    Attributes
+    ----------
+    html : str
+        The page.
+    summary : dict
+        The summary document (plain JSON values; see :func:`load_summary_schema`).
+    figures : dict
+        The figures as data URIs, by name.
+    """
+
+    html: str
+    summary: dict
+    figures: dict = field(default_factory=dict, repr=False)
+
+    def summary_json(self) -> str:
+        """The summary as JSON text (UTF-8, indented, no NaN)."""
+        return json.dumps(self.summary, indent=1, ensure_ascii=False, allow_nan=False) + "\n"
+
+    def write(self, html_path=None, json_path=None, *, protect: tuple = ()) -> dict:
+        """Write the page and/or the summary, each atomically.
+
+        Parameters
+        ----------
+        html_path, json_path : path-like, optional
+            Targets (None: not written).
+        protect : tuple of path-like
+            Paths that must never be written (the input).
+
+        Returns
+        -------
+        dict
+            ``{"report": path, "summary_json": path}`` for what was written.
+
+        Raises
+        ------
+        OutputError
+            When a target is an input, or its folder does not exist.
+        """
+        written = {}
+        if html_path is not None:
+            written["report"] = str(_write_text(html_path, self.html, protect))
+        if json_path is not None:
+            written["summary_json"] = str(_write_text(json_path, self.summary_json(), protect))
+        return written
+
+
+def _write_text(path, text: str, protect: tuple) -> Path:
+    target = Path(path)
+    for other in protect:
+        if other and os.path.abspath(os.fspath(other)) == os.path.abspath(target):
+            raise OutputError(f"Refusing to write the report over the input {os.fspath(other)!r}. Choose another file name.")
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(f"Folder {str(folder)!r} for {str(target)!r} does not exist. Create it first or choose another path.")
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return target
+
+
+def build_report(
+    result=None,
+    *,
+    prepared=None,
+    run_info: dict | None = None,
+    description=None,
+    lag_pairs=None,
+    variogram=None,
+    max_points: int = 50_000,
+    max_labels: int = 40,
+    seed: int = 0,
+    title: str | None = None,
+) -> Report:
+    """Build the report of a screen, or of a described layer.
+
+    Parameters
+    ----------
+    result : ScreenResult, optional
+        A screen. Gives every section.
+    prepared : Prepared, optional
+        Without a screen: the prepared layer (``describe``). When its frame
+        already holds ``screen_status``, ``screen_score`` and
+        ``expected_value`` (a pointsift output), the map and the table use them.
+    run_info : dict, optional
+        Run record; ``result.run_info`` by default.
+    description : Description, optional
+        The exploratory description; computed when omitted.
+    lag_pairs, variogram : optional
+        Results already computed (:class:`~pointsift.methods.lagpairs.LagPairScreen`,
+        :class:`~pointsift.methods.variogram.VariogramAnalysis`); computed with
+        the defaults when None; ``False`` leaves the section out.
+    max_points : int
+        Maps and clouds draw at most about this many points (density shading
+        or a stated seeded sample beyond; tables keep every row).
+    max_labels : int
+        Suspects labelled by id on the map (strongest first).
+    seed : int
+        Seed of the drawing samples and of the pair subsampling.
+    title : str, optional
+        Page title (default from the value column and the input).
+
+    Returns
+    -------
+    Report
+
+    Raises
+    ------
+    ConfigError
+        When neither a result nor a prepared layer is given.
+    """
+    from ..errors import ConfigError
+
+    if result is None and prepared is None:
+        raise ConfigError("build_report needs a screen result or a prepared layer; pass result= or prepared=.")
+    status = score = expected = strips = None
+    if result is not None:
+        prepared = result.prepared
+        run_info = result.run_info if run_info is None else run_info
+        command = "screen"
+        # use what the screen computed (and wrote to its GeoPackage) rather than computing it again
+        made = result.artefacts
+        if lag_pairs is None and made.get("lag_pairs") is not None:
+            lag_pairs = made["lag_pairs"]
+        if variogram is None and "variogram" in made:
+            variogram = made["variogram"] if made["variogram"] is not None else False
+        if description is None:  # a description brings its own strips (describe's --strips options)
+            strips = made.get("strips")
+    else:
+        command = "describe"
+        frame = prepared.frame
+        if {"screen_status", "screen_score"} <= set(frame.columns):
+            status = frame["screen_status"].astype(object).to_numpy()
+            score = frame["screen_score"].to_numpy(dtype=float)
+            expected = frame["expected_value"].to_numpy(dtype=float) if "expected_value" in frame else None
+    collected = collect(
+        prepared=prepared,
+        run_info=dict(run_info or {}),
+        command=command,
+        result=result,
+        description=description,
+        status=status,
+        score=score,
+        expected=expected,
+        lag_pairs=lag_pairs,
+        variogram=variogram,
+        strips=strips,
+        max_points=max_points,
+        max_labels=max_labels,
+        seed=seed,
+        title=title,
+    )
+    return Report(html=render(collected.summary, collected.figures), summary=collected.summary, figures=collected.figures)
+
+
+def load_summary_schema() -> dict:
+    """The JSON schema (draft 2020-12) of the summary document."""
+    text = resources.files(__package__).joinpath(SCHEMA_FILE).read_text(encoding="utf-8")
+    return json.loads(text)
+
+
+def validate_summary(summary: dict) -> None:
+    """Check a summary document against :func:`load_summary_schema` (needs the ``jsonschema`` package).
+
+    Raises
+    ------
+    jsonschema.ValidationError
+        Naming the first field that does not match.
+    """
+    import jsonschema
+
+    jsonschema.validate(summary, load_summary_schema(), cls=jsonschema.Draft202012Validator)

@@ -1,0 +1,417 @@
+"""Figures of the screening report: status map, residual map, neighbour-mean scatter.
+
+Every function takes arrays (work-CRS metres, values, statuses) and returns a
+:class:`matplotlib.figure.Figure`; matplotlib is imported inside the
+functions, with the Agg backend, so importing this module stays cheap.
+:func:`figure_data_uri` turns a figure into an inline PNG for the HTML page.
+
+The palette is ours, taken from the Okabe-Ito colour-blind-safe set (Okabe,
+M. and Ito, K. (2008), *Color Universal Design*), and each status also has its
+own marker shape, so the map reads in grey print and for colour-blind readers.
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+import math
+
+import numpy as np
+
+__all__ = [
+    "STATUS_STYLE",
+    "STATUS_ORDER",
+    "figure_data_uri",
+    "figure_png_bytes",
+    "marker_svg",
+    "nice_length",
+    "grid_north_offset",
+    "neighbour_mean_scatter",
+    "plot_status_map",
+    "plot_residual_map",
+    "plot_neighbour_scatter",
+]
+
+#: Drawing order (bottom to top) of the statuses on maps.
+STATUS_ORDER = ("ok", "unscreened", "review", "suspect")
+
+#: Colour, matplotlib marker, marker area (points^2) and edge colour per status.
+STATUS_STYLE = {
+    "suspect": {"colour": "#D55E00", "marker": "D", "size": 48.0, "edge": "#1a1a1a", "word": "suspect"},
+    "review": {"colour": "#E69F00", "marker": "^", "size": 40.0, "edge": "#1a1a1a", "word": "review"},
+    "ok": {"colour": "#0072B2", "marker": "o", "size": 9.0, "edge": "none", "word": "ok"},
+    "unscreened": {"colour": "#7f7f7f", "marker": "x", "size": 22.0, "edge": "#7f7f7f", "word": "unscreened"},
+}
+
+#: Resolution of the inline PNGs (dots per inch).
+DPI = 150
+
+
+def _figure(width: float, height: float):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(width, height), layout="constrained")
+
+
+def figure_png_bytes(fig, dpi: int = DPI) -> bytes:
+    """The figure as PNG bytes (white background, ``dpi`` dots per inch)."""
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=dpi, facecolor="white")
+    return buffer.getvalue()
+
+
+def figure_data_uri(fig, dpi: int = DPI) -> str:
+    """The figure as a ``data:image/png;base64,...`` URI for an inline ``<img>``."""
+    return "data:image/png;base64," + base64.b64encode(figure_png_bytes(fig, dpi)).decode("ascii")
+
+
+def marker_svg(status: str, size: int = 16) -> str:
+    """A small inline SVG of the map marker of ``status`` (for legends and tables)."""
+    style = STATUS_STYLE[status]
+    c, e = style["colour"], style["edge"] if style["edge"] != "none" else style["colour"]
+    h = size / 2.0
+    r = size * 0.36
+    if style["marker"] == "D":
+        shape = f'<polygon points="{h},{h - r * 1.2} {h + r},{h} {h},{h + r * 1.2} {h - r},{h}" fill="{c}" stroke="{e}" stroke-width="1"/>'
+    elif style["marker"] == "^":
+        shape = (f'<polygon points="{h},{h - r * 1.1} {h + r * 1.1},{h + r * 0.85} {h - r * 1.1},{h + r * 0.85}" '
+                 f'fill="{c}" stroke="{e}" stroke-width="1"/>')
+    elif style["marker"] == "o":
+        shape = f'<circle cx="{h}" cy="{h}" r="{r * 0.8}" fill="{c}"/>'
+    else:
+        d = r * 0.8
+        shape = (f'<path d="M{h - d},{h - d} L{h + d},{h + d} M{h - d},{h + d} L{h + d},{h - d}" '
+                 f'stroke="{c}" stroke-width="2" fill="none"/>')
+    return (f'<svg class="marker" width="{size}" height="{size}" '
+            f'viewBox="0 0 {size} {size}" role="img" aria-label="{style["word"]} marker">{shape}</svg>')
+
+
+def nice_length(span: float, fraction: float = 0.2) -> float:
+    """A round length (1, 2 or 5 times a power of ten) near ``fraction`` of ``span``.
+
+    >>> nice_length(7300.0)
+    1000.0
+    """
+    target = span * fraction
+    if not (math.isfinite(target) and target > 0):
+        return 1.0
+    power = 10.0 ** math.floor(math.log10(target))
+    for step in (5.0, 2.0, 1.0):
+        if step * power <= target:
+            return step * power
+    return power
+
+
+def _length_words(metres: float) -> str:
+    if metres >= 1000.0:
+        km = metres / 1000.0
+        return f"{km:g} km"
+    return f"{metres:g} m"
+
+
+def grid_north_offset(work_crs, x: float, y: float) -> float | None:
+    """Angle (degrees) between grid north of ``work_crs`` and true north at ``(x, y)``.
+
+    The meridian convergence from :meth:`pyproj.Proj.get_factors`; None when
+    the CRS or the point does not allow it.
+    """
+    try:
+        from pyproj import CRS, Proj, Transformer
+
+        crs = CRS.from_user_input(work_crs)
+        lon, lat = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True).transform(x, y)
+        factors = Proj(crs).get_factors(lon, lat)
+        value = float(factors.meridian_convergence)
+        return value if math.isfinite(value) else None
+    except Exception:  # a CRS PROJ cannot give factors for: say nothing rather than fail the report
+        return None
+
+
+def _decorate_map(ax, xy_km: np.ndarray, crs_label: str, north_note: str) -> None:
+    from matplotlib.patches import Rectangle
+
+    ax.set_aspect("equal", adjustable="box")
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.set_xlabel(f"easting (km), {crs_label}")
+    ax.set_ylabel(f"northing (km), {crs_label}")
+    ax.grid(True, color="#e6e6e6", lw=0.6, zorder=0)
+    ax.set_facecolor("#fbfbf8")
+    finite = xy_km[np.isfinite(xy_km).all(axis=1)]
+    if finite.size == 0:
+        return
+    lo, hi = finite.min(axis=0), finite.max(axis=0)
+    span = max(float(hi[0] - lo[0]), float(hi[1] - lo[1]), 1e-3)
+    pad = 0.06 * span
+    ax.set_xlim(lo[0] - pad, hi[0] + pad)
+    ax.set_ylim(lo[1] - pad * 2.2, hi[1] + pad)
+    # scale bar: two-tone bar in data units, placed at the lower left
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    bar_km = nice_length((x1 - x0) * 1000.0, 0.22) / 1000.0
+    bx, by = x0 + 0.04 * (x1 - x0), y0 + 0.045 * (y1 - y0)
+    height = 0.012 * (y1 - y0)
+    for i in range(4):
+        ax.add_patch(Rectangle((bx + i * bar_km / 4, by), bar_km / 4, height, facecolor="#1a1a1a" if i % 2 == 0 else "white",
+                               edgecolor="#1a1a1a", lw=0.8, zorder=6))
+    ax.text(bx, by + 1.8 * height, "0", ha="center", va="bottom", fontsize=8, zorder=6)
+    ax.text(bx + bar_km, by + 1.8 * height, _length_words(bar_km * 1000.0), ha="center", va="bottom", fontsize=8, zorder=6)
+    # north arrow (grid north of the work CRS) at the upper right
+    ax.annotate("", xy=(0.95, 0.96), xytext=(0.95, 0.84), xycoords="axes fraction",
+                arrowprops={"arrowstyle": "-|>,head_width=0.45,head_length=0.9", "color": "#1a1a1a", "lw": 1.6}, zorder=7)
+    ax.text(0.95, 0.82, "N", transform=ax.transAxes, ha="center", va="top", fontsize=11, fontweight="bold", zorder=7)
+    if north_note:
+        ax.text(0.99, 0.005, north_note, transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color="#444444")
+
+
+def _north_note(north_offset: float | None) -> str:
+    if north_offset is None:
+        return "arrow: grid north"
+    return f"arrow: grid north; true north differs by {abs(north_offset):.1f}\N{DEGREE SIGN} here"
+
+
+def plot_status_map(
+    xy,
+    status,
+    ids,
+    score,
+    *,
+    crs_label: str,
+    north_offset: float | None = None,
+    max_points: int = 50_000,
+    max_labels: int = 40,
+):
+    """Map of the points coloured and shaped by status, suspects labelled by id.
+
+    Parameters
+    ----------
+    xy : ndarray, shape (n, 2)
+        Work-CRS coordinates in metres (NaN rows are not drawn).
+    status : ndarray of str
+        ``suspect``, ``review``, ``ok`` or ``unscreened`` per row.
+    ids : ndarray of str
+        Labels of the points.
+    score : ndarray of float
+        Screen score (the strongest suspects get labels first).
+    crs_label : str
+        Name of the work CRS for the axis labels.
+    north_offset : float, optional
+        Meridian convergence at the centre (degrees), stated under the map.
+    max_points : int
+        ``ok`` and ``unscreened`` points beyond this many are shown as
+        density shading (hexagonal bins) instead of single markers; flagged
+        points are always drawn one by one.
+    max_labels : int
+        Most suspects labelled (strongest first).
+
+    Returns
+    -------
+    (matplotlib.figure.Figure, dict)
+        The figure and a record of what was drawn: ``drawn`` per status,
+        ``shaded`` (rows shown as density), ``labelled``.
+    """
+    from matplotlib import patheffects
+
+    xy = np.asarray(xy, dtype=float)
+    status = np.asarray(status, dtype=object)
+    score = np.asarray(score, dtype=float)
+    km = xy / 1000.0
+    located = np.isfinite(km).all(axis=1)
+    fig = _figure(8.6, 7.4)
+    ax = fig.add_subplot()
+    record = {"drawn": {}, "shaded": {}, "labelled": 0, "max_points": int(max_points), "unlocated": int((~located).sum())}
+    for name in STATUS_ORDER:
+        style = STATUS_STYLE[name]
+        rows = np.flatnonzero((status == name) & located)
+        record["drawn"][name] = 0
+        if rows.size == 0:
+            continue
+        count_label = f"{style['word']} ({rows.size:,})"
+        if name in ("ok", "unscreened") and rows.size > max_points:
+            cmap = "Greys" if name == "ok" else "Purples"
+            ax.hexbin(km[rows, 0], km[rows, 1], gridsize=120, mincnt=1, cmap=cmap, bins="log", linewidths=0, zorder=2)
+            ax.scatter([], [], marker="h", c="#9a9a9a", s=40, label=f"{count_label}, shown as density")
+            record["shaded"][name] = int(rows.size)
+            continue
+        edge = style["edge"]
+        kwargs = {"edgecolors": edge, "linewidths": 0.6} if edge != "none" and style["marker"] != "x" else {"linewidths": 1.0 if style["marker"] == "x" else 0}
+        alpha = 0.75 if name == "ok" else 1.0
+        ax.scatter(km[rows, 0], km[rows, 1], marker=style["marker"], c=style["colour"], s=style["size"], alpha=alpha,
+                   label=count_label, zorder={"ok": 3, "unscreened": 4, "review": 5, "suspect": 6}[name], **kwargs)
+        record["drawn"][name] = int(rows.size)
+    suspects = np.flatnonzero((status == "suspect") & located)
+    if suspects.size:
+        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))][:max_labels]
+        halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
+        for row in order:
+            ax.annotate(str(ids[row]), (km[row, 0], km[row, 1]), xytext=(5, 4), textcoords="offset points", fontsize=7,
+                        color="#7a2a00", path_effects=halo, zorder=8)
+        record["labelled"] = int(order.size)
+    _decorate_map(ax, km, crs_label, _north_note(north_offset))
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(loc="upper left", fontsize=8, framealpha=0.92, title="status", title_fontsize=8)
+    ax.set_title("Points by screening status", fontsize=11)
+    return fig, record
+
+
+def plot_residual_map(
+    xy,
+    residual_z,
+    status,
+    *,
+    crs_label: str,
+    limit: float = 4.0,
+    north_offset: float | None = None,
+    max_points: int = 50_000,
+    seed: int = 0,
+):
+    """Map of the standardized local residuals (diverging, colour-blind-safe PuOr).
+
+    Points beyond ``max_points`` are drawn from a seeded sample that always
+    keeps the flagged points; the record says how many were drawn.
+
+    Returns
+    -------
+    (matplotlib.figure.Figure, dict)
+    """
+    from matplotlib.colors import TwoSlopeNorm
+
+    xy = np.asarray(xy, dtype=float)
+    z = np.asarray(residual_z, dtype=float)
+    status = np.asarray(status, dtype=object)
+    km = xy / 1000.0
+    judged = np.isfinite(z) & np.isfinite(km).all(axis=1)
+    rows = np.flatnonzero(judged)
+    record = {"points": int(rows.size), "drawn": int(rows.size), "sample_seed": None}
+    if rows.size > max_points:
+        flagged = rows[np.isin(status[rows], ("suspect", "review"))]
+        others = rows[~np.isin(status[rows], ("suspect", "review"))]
+        keep = max(max_points - flagged.size, 0)
+        picked = np.random.default_rng(seed).choice(others, size=min(keep, others.size), replace=False)
+        rows = np.sort(np.concatenate([flagged, picked]))
+        record.update(drawn=int(rows.size), sample_seed=int(seed))
+    order = rows[np.argsort(np.abs(z[rows]), kind="stable")]  # strongest drawn last, on top
+    fig = _figure(8.6, 7.0)
+    ax = fig.add_subplot()
+    lim = max(float(limit), 1.0)
+    size = 6.0 + 10.0 * np.clip(np.abs(z[order]), 0, lim)
+    art = ax.scatter(km[order, 0], km[order, 1], c=np.clip(z[order], -lim, lim), cmap="PuOr_r",
+                     norm=TwoSlopeNorm(vcenter=0.0, vmin=-lim, vmax=lim), s=size, edgecolors="#333333",
+                     linewidths=0.15, zorder=3)
+    bar = fig.colorbar(art, ax=ax, shrink=0.8, extend="both")
+    bar.set_label("standardized local residual (robust sd; value minus expected)")
+    unjudged = np.flatnonzero(~np.isfinite(z) & np.isfinite(km).all(axis=1))
+    if unjudged.size:
+        shown = unjudged if unjudged.size <= max_points else np.sort(
+            np.random.default_rng(seed).choice(unjudged, size=max_points, replace=False))
+        ax.scatter(km[shown, 0], km[shown, 1], marker="x", c="#7f7f7f", s=14, linewidths=0.8, zorder=2,
+                   label=f"not judged ({unjudged.size:,})")
+        ax.legend(loc="upper left", fontsize=8)
+    _decorate_map(ax, km, crs_label, _north_note(north_offset))
+    title = "Local residuals: orange above, purple below what the neighbours predict"
+    if record["sample_seed"] is not None:
+        title += f"\n{record['drawn']:,} of {record['points']:,} points drawn (seeded sample, every flagged point kept)"
+    ax.set_title(title, fontsize=10)
+    return fig, record
+
+
+def neighbour_mean_scatter(values, indices, judged):
+    """Standardized values and the mean of their neighbours' standardized values.
+
+    The same standardization as :func:`pointsift.methods.autocorr.local_autocorrelation`:
+    over the judged rows, ``z = (v - mean) / sd`` (sd with ``n``
+    denominator); the neighbour mean uses only judged neighbours
+    (row-standardized weights), so ``(z, lag)`` gives the Local Moran
+    quadrant of each point (Anselin 1995, *Geographical Analysis* 27,
+    93-115; the scatter itself: Anselin 1996, in *Spatial Analytical
+    Perspectives on GIS*).
+
+    Parameters
+    ----------
+    values : ndarray, shape (n,)
+        Values the cluster statistics used (trend removed by the screen).
+    indices : ndarray of int, shape (n, m)
+        Neighbour rows, ``-1`` padded (:attr:`pointsift.graph.NeighbourGraph.indices`).
+    judged : ndarray of bool, shape (n,)
+        Rows the statistics judged.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        ``z`` and ``lag`` per row; NaN for rows not judged or with no judged neighbour.
+    """
+    values = np.asarray(values, dtype=float)
+    judged = np.asarray(judged, dtype=bool) & np.isfinite(values)
+    n = values.size
+    z = np.full(n, np.nan)
+    lag = np.full(n, np.nan)
+    y = values[judged]
+    if y.size < 2:
+        return z, lag
+    sd = y.std()
+    z[judged] = (y - y.mean()) / sd if sd > 0 else 0.0
+    idx = np.asarray(indices)
+    ok = idx >= 0
+    ok[ok] = judged[idx[ok]]
+    neighbour_z = np.where(ok, z[np.where(ok, idx, 0)], 0.0)
+    k = ok.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lag = np.where(judged & (k > 0), neighbour_z.sum(axis=1) / np.maximum(k, 1), np.nan)
+    z = np.where(np.isfinite(lag), z, np.nan)
+    return z, lag
+
+
+def plot_neighbour_scatter(z, lag, status, *, quadrant_counts: dict, slope: float, max_points: int = 50_000, seed: int = 0):
+    """Scatter of each standardized value against the mean of its neighbours, with quadrant counts.
+
+    Returns
+    -------
+    (matplotlib.figure.Figure, dict)
+    """
+    z = np.asarray(z, dtype=float)
+    lag = np.asarray(lag, dtype=float)
+    status = np.asarray(status, dtype=object)
+    rows = np.flatnonzero(np.isfinite(z) & np.isfinite(lag))
+    record = {"points": int(rows.size), "drawn": int(rows.size), "sample_seed": None}
+    if rows.size > max_points:
+        flagged = rows[np.isin(status[rows], ("suspect", "review"))]
+        others = rows[~np.isin(status[rows], ("suspect", "review"))]
+        picked = np.random.default_rng(seed).choice(others, size=max(0, min(max_points - flagged.size, others.size)), replace=False)
+        rows = np.sort(np.concatenate([flagged, picked]))
+        record.update(drawn=int(rows.size), sample_seed=int(seed))
+    fig = _figure(7.4, 6.4)
+    ax = fig.add_subplot()
+    ax.axhline(0, color="#555555", lw=0.8, zorder=1)
+    ax.axvline(0, color="#555555", lw=0.8, zorder=1)
+    for name in STATUS_ORDER:
+        style = STATUS_STYLE[name]
+        sel = rows[status[rows] == name]
+        if sel.size == 0:
+            continue
+        kwargs = {"edgecolors": style["edge"], "linewidths": 0.6} if style["edge"] != "none" and style["marker"] != "x" else {"linewidths": 0}
+        ax.scatter(z[sel], lag[sel], marker=style["marker"], c=style["colour"], s=max(style["size"] * 0.8, 8),
+                   alpha=0.6 if name == "ok" else 1.0, label=f"{style['word']} ({sel.size:,})", zorder=3, **kwargs)
+    if rows.size:
+        span = np.array([np.nanmin(z[rows]), np.nanmax(z[rows])])
+        if math.isfinite(slope):
+            ax.plot(span, slope * span, color="#1a1a1a", lw=1.0, ls="--", label=f"slope {slope:.3f}", zorder=4)
+    corners = {
+        "high among high": (0.98, 0.98, "right", "top"),
+        "low among high": (0.02, 0.98, "left", "top"),
+        "low among low": (0.02, 0.02, "left", "bottom"),
+        "high among low": (0.98, 0.02, "right", "bottom"),
+    }
+    for word, (x, y, ha, va) in corners.items():
+        ax.text(x, y, f"{word}\n{quadrant_counts.get(word, 0):,} points", transform=ax.transAxes, ha=ha, va=va,
+                fontsize=8.5, bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": "#bbbbbb", "alpha": 0.9}, zorder=5)
+    ax.set_xlabel("value, standardized (sd from the mean; regional trend removed)")
+    ax.set_ylabel("mean of the neighbours' standardized values (sd)")
+    title = "Each value against the mean of its neighbours"
+    if record["sample_seed"] is not None:
+        title += f"\n{record['drawn']:,} of {record['points']:,} points drawn (seeded sample, every flagged point kept)"
+    ax.set_title(title, fontsize=10)
+    ax.legend(loc="center left", bbox_to_anchor=(0.0, 0.62), fontsize=8, framealpha=0.9)
+    ax.grid(True, color="#eeeeee", lw=0.6, zorder=0)
+    return fig, record
