@@ -25,6 +25,7 @@ from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation, local_autoco
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
 from .methods.repairs import likely_slips
+from .methods.strips import flagged_strip_evidence, strip_summary
 from .prepare import Prepared, prepare
 from .verdict import STATUSES, decide, format_length
 
@@ -184,6 +185,13 @@ def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_in
     return lag_screen, variogram, info
 
 
+def _strips(prepared: Prepared):
+    """West-east and south-north strips with the calibrated mean-median statistic, and their polygon layer."""
+    result = strip_summary(prepared.xy[:, 0], prepared.xy[:, 1], np.where(prepared.usable, prepared.values, np.nan))
+    layer = gpd.GeoDataFrame(result.table, geometry="geometry", crs=prepared.work_crs)
+    return result, layer
+
+
 def _lag_pair_reasons(lag_screen) -> np.ndarray:
     from .methods.lagpairs import lag_pair_reasons
 
@@ -286,6 +294,10 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     lag_screen, variogram, spatial_info = _lag_pairs_and_variogram(prepared, detrended, trend_info, config)
     timings["lag_pairs_variogram_s"] = time.perf_counter() - t
 
+    t = time.perf_counter()
+    strips, strip_layer = _strips(prepared)
+    timings["strips_s"] = time.perf_counter() - t
+
     coincident = coincident_conflicts(
         prepared.values,
         prepared.coincident,
@@ -311,7 +323,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         autocorr=autocorr,
         coincident=coincident,
         config=config,
-        supporting=(_lag_pair_reasons(lag_screen),),
+        supporting=(_lag_pair_reasons(lag_screen), flagged_strip_evidence(strips, prepared.n)),
     )
     timings["verdict_s"] = time.perf_counter() - t
 
@@ -392,12 +404,18 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         frame=out,
         counts=counts,
         run_info=run_info,
-        tables=_spatial_tables(lag_screen, variogram, prepared),
+        tables={"strips": strip_layer, **_spatial_tables(lag_screen, variogram, prepared)},
         prepared=prepared,
         graph=graph,
         local=local,
         autocorr=autocorr,
-        artefacts={"coincident": coincident, "detrended": detrended, "lag_pairs": lag_screen, "variogram": variogram},
+        artefacts={
+            "coincident": coincident,
+            "detrended": detrended,
+            "lag_pairs": lag_screen,
+            "variogram": variogram,
+            "strips": strips,
+        },
     )
 
 

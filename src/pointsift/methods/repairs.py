@@ -85,7 +85,7 @@ def likely_slips(
     scale: np.ndarray,
     candidates: np.ndarray,
     *,
-    fit_z: float = 2.0,
+    fit_z: float = 1.5,
     min_change_z: float = 2.0,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Find the entry mistake that best explains each candidate's deviation.
