@@ -251,6 +251,15 @@ def test_automatic_utm_zone_matches_pyproj_database(lon_range, lat_range):
         ([(9.0, 21.0)], (45.0, 50.0)),  # several zones: local equal-area projection
         ([(179.2, 180.0), (-180.0, -179.2)], (-18.0, -17.0)),  # straddling the antimeridian
         ([(-1.5, 1.5)], (51.0, 53.0)),  # straddling the prime meridian
+        pytest.param(
+            [(-10.0, 30.0)],
+            (35.0, 60.0),
+            marks=pytest.mark.xfail(
+                strict=True,
+                reason="one equal-area projection over a continent (40 x 25 degrees): neighbour distances "
+                "off by up to 1.2 % at the edges; a network that wide would need per-region work CRSs",
+            ),
+        ),
     ],
 )
 def test_automatic_work_crs_distances_match_geodesics(lons, lat_range):
