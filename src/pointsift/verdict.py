@@ -54,6 +54,12 @@ def format_length(metres: float) -> str:
     return f"{metres / 1000:.0f} km"
 
 
+def _round_length(metres: np.ndarray) -> np.ndarray:
+    """Lengths rounded as :func:`format_length` shows them (to the metre, 0.1 km or 1 km)."""
+    metres = np.asarray(metres, dtype=float)
+    return np.where(metres < 1000, np.round(metres), np.where(metres < 20000, np.round(metres, -2), np.round(metres, -3)))
+
+
 def _num(v: float) -> str:
     return f"{v:.5g}" if np.isfinite(v) else "n/a"
 
@@ -125,34 +131,46 @@ def decide(
 
     # --- reasons, built column-wise -------------------------------------------------
     count = local.neighbour_count
-    within = [format_length(d) for d in max_neighbour_distance]
-    main = []
-    for i in range(n):
-        if unscreened[i]:
-            main.append(reason_fallback[i])
-            continue
+    # Rows within the review threshold share a handful of sentences: build each
+    # distinct one once (fast for a million rows).
+    quiet = ~unscreened & (absz < config.review_z)
+    main = np.where(unscreened, reason_fallback, "").astype(object)
+    if quiet.any():
+        rounded = _round_length(max_neighbour_distance[quiet])
+        lengths, where_length = np.unique(rounded, return_inverse=True)
+        distance_text = np.array([format_length(d) for d in lengths], dtype=object)
+        tenths = np.round(absz[quiet], 1)
+        key = pd.DataFrame({"z": tenths, "k": count[quiet], "d": where_length})
+        codes, uniques = pd.MultiIndex.from_frame(key).factorize()
+        sentences = np.array(
+            [
+                f"within {zt:.1f} robust sd of the value expected from {k} neighbours within {distance_text[d]}"
+                for zt, k, d in uniques
+            ],
+            dtype=object,
+        )
+        main[quiet] = sentences[codes]
+    for i in np.flatnonzero(~unscreened & ~quiet):
         a = absz[i]
-        neighbours = f"{count[i]} neighbours within {within[i]}"
-        if a >= config.review_z:
-            side = "above" if z[i] > 0 else "below"
-            text = (
-                f"value {_num(values[i])} is {a:.1f} robust sd {side} the {_num(local.expected[i])} "
-                f"expected from {neighbours}"
-            )
-            if echoed[i]:
-                if local.explained_by_curvature[i]:
-                    text += (
-                        f", but the curved surface of those neighbours predicts it within {abs(local.curved_z[i]):.1f} sd: "
-                        "likely a real local feature (for example a pumping cone or a valley), check before correcting"
-                    )
-                else:
-                    text += (
-                        f", but {local.echo[i]:.0%} of those neighbours deviate the same way: likely a real local "
-                        "feature (for example a pumping cone or a valley), check before correcting"
-                    )
-        else:
-            text = f"within {a:.1f} robust sd of the {_num(local.expected[i])} expected from {neighbours}"
-        main.append(text)
+        neighbours = f"{count[i]} neighbours within {format_length(max_neighbour_distance[i])}"
+        side = "above" if z[i] > 0 else "below"
+        text = (
+            f"value {_num(values[i])} is {a:.1f} robust sd {side} the {_num(local.expected[i])} "
+            f"expected from {neighbours}"
+        )
+        if echoed[i]:
+            if local.explained_by_curvature[i]:
+                text += (
+                    f", but the {'plane' if local.quadratic_used[i] else 'curved surface'} of those neighbours "
+                    f"predicts it within {abs(local.curved_z[i]):.1f} sd: likely a real local feature "
+                    "(for example a pumping cone or a valley), check before correcting"
+                )
+            else:
+                text += (
+                    f", but {local.echo[i]:.0%} of those neighbours deviate the same way: likely a real local "
+                    "feature (for example a pumping cone or a valley), check before correcting"
+                )
+        main[i] = text
     parts = [np.array(main, dtype=object)]
 
     if autocorr is not None:

@@ -123,7 +123,23 @@ def _masked_median(a: np.ndarray, mask: np.ndarray) -> np.ndarray:
     return np.where(count > 0, out, np.nan)
 
 
-def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarray, ridge_from: int):
+def _inverse_3x3(a: np.ndarray) -> np.ndarray:
+    """Inverse of many symmetric 3 x 3 matrices by the adjugate (much faster
+    than a batched LAPACK call for this size)."""
+    a00, a01, a02 = a[:, 0, 0], a[:, 0, 1], a[:, 0, 2]
+    a11, a12, a22 = a[:, 1, 1], a[:, 1, 2], a[:, 2, 2]
+    c00 = a11 * a22 - a12 * a12
+    c01 = a02 * a12 - a01 * a22
+    c02 = a01 * a12 - a02 * a11
+    c11 = a00 * a22 - a02 * a02
+    c12 = a01 * a02 - a00 * a12
+    c22 = a00 * a11 - a01 * a01
+    det = a00 * c00 + a01 * c01 + a02 * c02
+    out = np.stack([c00, c01, c02, c01, c11, c12, c02, c12, c22], axis=1).reshape(-1, 3, 3)
+    return out / det[:, None, None]
+
+
+def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarray, ridge_from: int, leverage: bool = True):
     """Weighted least squares for every row at once.
 
     Returns the coefficients and the variance inflation of the intercept (the
@@ -141,8 +157,10 @@ def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarra
     for term in range(ridge_from, p):
         a[:, term, term] += ridge
     a[~ok] = np.eye(p)
-    a_inv = np.linalg.inv(a)
+    a_inv = _inverse_3x3(a) if p == 3 else np.linalg.inv(a)
     coef = (a_inv @ b[:, :, None])[:, :, 0]
+    if not leverage:
+        return coef, None
     # row 0 of A^-1 X'W, squared and summed = [A^-1 X'W^2 X A^-1]_00
     influence = (a_inv[:, 0:1, :] @ weighted_t)[:, 0, :]
     leverage = (influence * influence).sum(axis=1)
@@ -232,7 +250,7 @@ def robust_plane_predict(
         # too few neighbours kept (all weights 0 for a scattered row): fall back to distance weights
         lost = (w > 0).sum(axis=1) < 3
         w = np.where(lost[:, None], w_dist, w)
-        coef, leverage = _batched_wls(plane, v, w, ok, ridge_from=1)
+        coef, leverage = _batched_wls(plane, v, w, ok, ridge_from=1, leverage=step == iterations)
         resid = v - (plane @ coef[:, :, None])[:, :, 0]
         fit_scale = _MAD_TO_SD * _masked_median(np.abs(resid), mask) * df_correction
         if step == 0:
