@@ -106,6 +106,21 @@ def _summary_figures(s) -> dict:
     return plain(s.as_dict())
 
 
+def _with_units(fig, value_label: str):
+    """Put units on axis labels of figures drawn by the method modules (separations are metres)."""
+    for ax in fig.axes:
+        x, y = ax.get_xlabel(), ax.get_ylabel()
+        if x == "separation":
+            ax.set_xlabel("separation (m)")
+        if y == "semivariance":
+            ax.set_ylabel(f"semivariance (squared units of {value_label})")
+        for side, text in (("x", x), ("y", y)):
+            if text in ("value at tail", "value at head"):
+                new = f"{text.replace('value', value_label)}"
+                (ax.set_xlabel if side == "x" else ax.set_ylabel)(new)
+    return fig
+
+
 def _usable_values(prepared):
     return np.where(prepared.usable, prepared.values, np.nan)
 
@@ -356,6 +371,7 @@ def collect(
     # ------------------------------------------------------------------ local evidence
     t = time.perf_counter()
     residual_values, trend_method = _trend_residuals(result, description, prepared)
+    basis_label = f"{value_column or 'value'} (trend removed)" if trend_method != "none" else (value_column or "value")
     local: dict = {"available": False}
     if result is not None and result.graph is not None:
         z_res = frame["local_residual_z"].to_numpy(dtype=float)
@@ -403,6 +419,7 @@ def collect(
                 "slope": plain(slope),
                 "drawn": drawn_scatter["drawn"],
                 "sample_seed": drawn_scatter["sample_seed"],
+                "beyond_frame": drawn_scatter["beyond_frame"],
             },
         }
         _section(summary, "local", "Local evidence", True)
@@ -429,7 +446,7 @@ def collect(
             pairs_table = lag_pairs.pair_table(flagged_only=True)
             figures_lp = []
             for d in lag_pairs.directions:
-                fig = plot_lag_pairs(lag_pairs, d, max_points=min(max_points, 5000), seed=seed)
+                fig = _with_units(plot_lag_pairs(lag_pairs, d, max_points=min(max_points, 5000), seed=seed), basis_label)
                 key = f"lag_pairs_{direction_label(d)}"
                 figs[key] = {"uri": fg.figure_data_uri(fig),
                              "alt": f"Lag pairs, {DIRECTION_NAMES.get(d, direction_label(d))}"}
@@ -466,7 +483,7 @@ def collect(
             made_here = variogram is None
             if made_here:
                 variogram = analyse_variogram(xy, residual_values, seed=seed)
-            fig = plot_variogram(variogram)
+            fig = _with_units(plot_variogram(variogram), basis_label)
             figs["variogram"] = {"uri": fg.figure_data_uri(fig), "alt": "Semivariograms with the fitted model"}
             summary["variogram"] = {
                 "available": True,

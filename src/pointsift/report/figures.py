@@ -293,7 +293,7 @@ def plot_residual_map(
         rows = np.sort(np.concatenate([flagged, picked]))
         record.update(drawn=int(rows.size), sample_seed=int(seed))
     order = rows[np.argsort(np.abs(z[rows]), kind="stable")]  # strongest drawn last, on top
-    fig = _figure(8.6, 7.0)
+    fig = _figure(8.6, 6.8)
     ax = fig.add_subplot()
     lim = max(float(limit), 1.0)
     size = 6.0 + 10.0 * np.clip(np.abs(z[order]), 0, lim)
@@ -381,22 +381,44 @@ def plot_neighbour_scatter(z, lag, status, *, quadrant_counts: dict, slope: floa
         picked = np.random.default_rng(seed).choice(others, size=max(0, min(max_points - flagged.size, others.size)), replace=False)
         rows = np.sort(np.concatenate([flagged, picked]))
         record.update(drawn=int(rows.size), sample_seed=int(seed))
-    fig = _figure(7.4, 6.4)
+    fig = _figure(7.0, 7.2)
     ax = fig.add_subplot()
     ax.axhline(0, color="#555555", lw=0.8, zorder=1)
     ax.axvline(0, color="#555555", lw=0.8, zorder=1)
+    # A few wild values inflate the sd and would squeeze every other point into
+    # a line: the frame spans the bulk (99.5 % of |z| and of |lag|, with a
+    # margin) and points beyond it are drawn hollow on its edge, and counted.
+    zx, zy = z[rows], lag[rows]
+    limit_x = limit_y = 1.0
+    if rows.size:
+        qx, qy = float(np.quantile(np.abs(zx), 0.995)), float(np.quantile(np.abs(zy), 0.995))
+        limit_x = qx * 1.25 if qx > 0 else 1.0
+        limit_y = qy * 1.25 if qy > 0 else 1.0
+    beyond = (np.abs(zx) > limit_x) | (np.abs(zy) > limit_y)
+    px, py = np.clip(zx, -limit_x, limit_x), np.clip(zy, -limit_y, limit_y)
+    record["beyond_frame"] = int(beyond.sum())
     for name in STATUS_ORDER:
         style = STATUS_STYLE[name]
-        sel = rows[status[rows] == name]
-        if sel.size == 0:
+        part = status[rows] == name
+        if not part.any():
             continue
         kwargs = {"edgecolors": style["edge"], "linewidths": 0.6} if style["edge"] != "none" and style["marker"] != "x" else {"linewidths": 0}
-        ax.scatter(z[sel], lag[sel], marker=style["marker"], c=style["colour"], s=max(style["size"] * 0.8, 8),
-                   alpha=0.6 if name == "ok" else 1.0, label=f"{style['word']} ({sel.size:,})", zorder=3, **kwargs)
-    if rows.size:
-        span = np.array([np.nanmin(z[rows]), np.nanmax(z[rows])])
-        if math.isfinite(slope):
-            ax.plot(span, slope * span, color="#1a1a1a", lw=1.0, ls="--", label=f"slope {slope:.3f}", zorder=4)
+        inside = part & ~beyond
+        ax.scatter(px[inside], py[inside], marker=style["marker"], c=style["colour"], s=max(style["size"] * 0.8, 8),
+                   alpha=0.6 if name == "ok" else 1.0, label=f"{style['word']} ({int(part.sum()):,})", zorder=3, **kwargs)
+        outside = part & beyond
+        if outside.any():
+            ax.scatter(px[outside], py[outside], marker=style["marker"], facecolors="none",
+                       edgecolors=style["colour"], s=max(style["size"] * 1.2, 24), linewidths=1.4, zorder=4)
+    if record["beyond_frame"]:
+        ax.scatter([], [], marker="o", facecolors="none", edgecolors="#444444", s=24,
+                   label=f"beyond the frame, drawn on its edge ({record['beyond_frame']:,})")
+    if math.isfinite(slope):
+        span = np.array([-limit_x, limit_x])
+        ax.plot(span, np.clip(slope * span, -limit_y, limit_y), color="#1a1a1a", lw=1.0, ls="--",
+                label=f"slope {slope:.3f}", zorder=4)
+    ax.set_xlim(-limit_x * 1.04, limit_x * 1.04)
+    ax.set_ylim(-limit_y * 1.04, limit_y * 1.04)
     corners = {
         "high among high": (0.98, 0.98, "right", "top"),
         "low among high": (0.02, 0.98, "left", "top"),
@@ -412,6 +434,6 @@ def plot_neighbour_scatter(z, lag, status, *, quadrant_counts: dict, slope: floa
     if record["sample_seed"] is not None:
         title += f"\n{record['drawn']:,} of {record['points']:,} points drawn (seeded sample, every flagged point kept)"
     ax.set_title(title, fontsize=10)
-    ax.legend(loc="center left", bbox_to_anchor=(0.0, 0.62), fontsize=8, framealpha=0.9)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncols=2, fontsize=8, framealpha=0.9)
     ax.grid(True, color="#eeeeee", lw=0.6, zorder=0)
     return fig, record

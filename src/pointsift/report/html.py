@@ -62,7 +62,7 @@ table.data th, table.data td { padding:5px 8px; border-bottom:1px solid var(--li
 table.data td.num, table.data th.num { text-align:right; font-variant-numeric: tabular-nums; white-space:nowrap; }
 table.data thead th { background:var(--soft); position:sticky; top:0; z-index:1; }
 table.data tr.flag-row td { background:#fff3e0; }
-.scroll { max-height: 460px; overflow:auto; border:1px solid var(--line); border-radius:6px; }
+.scroll { max-height: 620px; overflow:auto; border:1px solid var(--line); border-radius:6px; }
 figure { margin:8px 0 18px; }
 figure img { max-width:100%; height:auto; border:1px solid var(--line); border-radius:6px; background:#fff; }
 figcaption { color:var(--muted); font-size:.88rem; margin-top:4px; }
@@ -82,6 +82,7 @@ th[aria-sort=descending] button.sort::after { content:"\\25BC"; color:var(--ink)
 .status { display:inline-flex; gap:5px; align-items:center; white-space:nowrap; font-weight:600; }
 svg.marker { vertical-align:middle; flex:none; }
 td.reasons { min-width:26em; font-size:.86rem; }
+#quadrant-table th { white-space:nowrap; }
 details { margin:8px 0; }
 details > summary { cursor:pointer; color:var(--accent); }
 footer { margin-top:36px; padding-top:10px; border-top:1px solid var(--line); color:var(--muted); font-size:.85rem; }
@@ -173,6 +174,8 @@ def format_number(value, digits: int = 6) -> str:
             return "n/a"
         if value == int(value) and abs(value) < 1e15:
             return f"{int(value):,}" if abs(value) >= 1e4 else f"{value:g}"
+        if 10.0 ** digits <= abs(value) < 1e15:
+            return f"{value:,.0f}"
         return f"{value:.{digits}g}"
     return escape(str(value))
 
@@ -376,7 +379,7 @@ def _flagged_section(summary: dict) -> str:
             f'<td class="num" data-sort="{rank}">{rank}</td>'
             f'<td data-sort="{escape(r["id"], quote=True)}">{escape(r["id"])}</td>'
             f'<td data-sort="{status_rank}">{_status_badge(r["status"])}</td>'
-            + _num_cell(r["value"]) + _num_cell(r["expected_value"]) + _num_cell(r["score"], 4)
+            + _num_cell(r["value"]) + _num_cell(r["expected_value"]) + _num_cell(r["score"])
             + f'<td class="reasons">{escape(r["reasons"])}</td></tr>'
         )
     out.append(f'<div class="scroll"><table class="data" id="flagged-table" data-sortable>'
@@ -480,7 +483,7 @@ def _local_section(summary: dict, figures: dict) -> str:
     params = summary.get("parameters", {})
     lead = (f'<p class="lead">Each value is predicted from its neighbours by a robust local plane; the difference, in robust '
             f"standard deviations, is the standardized local residual. {format_number(rz['judged'])} points judged, from "
-            f"{format_number(rz['min'], 3)} to {format_number(rz['max'], 3)}; {format_number(rz['beyond_review_z'])} reach "
+            f"{format_number(rz['min'], 4)} to {format_number(rz['max'], 4)}; {format_number(rz['beyond_review_z'])} reach "
             f"{format_number(params.get('review_z'))} and {format_number(rz['beyond_suspect_z'])} reach "
             f"{format_number(params.get('suspect_z'))} (the review and suspect thresholds).</p>")
     rm = local["residual_map"]
@@ -499,6 +502,9 @@ def _local_section(summary: dict, figures: dict) -> str:
     cap2 = (f"Each standardized value ({escape(local['values'])}) against the mean of its neighbours' standardized values. "
             f"High among low and low among high are the spatial outliers. The dashed line has slope "
             f"{format_number(sc['slope'], 4)} (global Moran's I for these neighbour weights).")
+    if sc.get("beyond_frame"):
+        cap2 += (f" {sc['beyond_frame']:,} points lie beyond the frame (which spans 99.5 % of the points) and are drawn "
+                 "hollow on its edge.")
     if sc.get("sample_seed") is not None:
         cap2 += f" {sc['drawn']:,} of {sc['points']:,} points drawn (seeded sample, every flagged point kept); counts are of all points."
     return (

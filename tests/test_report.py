@@ -1,0 +1,430 @@
+"""The screening report (no browser): self-contained HTML, inline images, table vs GeoPackage, JSON vs schema.
+
+The GeoPackage is read back with pyogrio (an independent reader), the page
+with the standard library's HTML parser, the PNGs with Pillow, the JSON
+against the schema file in the repository with jsonschema.
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+import json
+import math
+import re
+import xml.etree.ElementTree as ET
+from html.parser import HTMLParser
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyogrio
+import pytest
+from click.testing import CliRunner
+
+from pointsift.cli import main
+from pointsift.config import ScreenConfig
+from pointsift.errors import OutputError
+from pointsift.report import build_report, flagged_rows
+from pointsift.report.figures import grid_north_offset, neighbour_mean_scatter, nice_length, plot_status_map
+from pointsift.report.html import format_number
+from pointsift.run import screen_file
+
+from conftest import build_wells, write_points
+
+SCHEMA_PATH = Path(__file__).resolve().parents[1] / "src" / "pointsift" / "report" / "summary.schema.json"
+
+
+def _planted_layer(n: int = 320, seed: int = 11):
+    """Invented wells with a decimal slip, a sign error, a spike and a blank value."""
+    wells = build_wells(n, seed=seed)
+    wells.loc[7, "level_m"] = wells.loc[7, "level_m"] * 10.0
+    wells.loc[40, "level_m"] = -wells.loc[40, "level_m"]
+    wells.loc[90, "level_m"] = wells.loc[90, "level_m"] + 6.0
+    wells.loc[150, "level_m"] = np.nan
+    return wells
+
+
+@pytest.fixture(scope="module")
+def screened(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    source = write_points(_planted_layer(), folder / "wells.gpkg")
+    out, html_path, json_path = folder / "screened.gpkg", folder / "report.html", folder / "summary.json"
+    run = screen_file(source, out, ScreenConfig(value="level_m", id="well_id"), report_path=html_path,
+                      summary_json_path=json_path)
+    return {
+        "run": run,
+        "gpkg": out,
+        "html": html_path.read_text(encoding="utf-8"),
+        "summary": json.loads(json_path.read_text(encoding="utf-8")),
+        "layer": pyogrio.read_dataframe(out, layer="screened"),
+    }
+
+
+class _Page(HTMLParser):
+    """Collects every attribute that can fetch something, the images, the SVGs and the flagged table."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.fetching: list[tuple[str, str, str]] = []
+        self.images: list[str] = []
+        self.svgs: list[str] = []
+        self._svg_depth = 0
+        self._svg_parts: list[str] = []
+        self.table_rows: list[dict] = []
+        self._in_flagged = False
+        self._row: dict | None = None
+        self._cell: dict | None = None
+        self.cards: dict[str, int] = {}
+        self._card: str | None = None
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        for name in ("src", "href", "srcset", "action", "poster", "data", "formaction", "background", "xlink:href"):
+            if name in a and a[name] is not None:
+                self.fetching.append((tag, name, a[name]))
+        if tag == "img":
+            self.images.append(a.get("src", ""))
+        if tag == "svg" or self._svg_depth:
+            self._svg_depth += tag == "svg"
+            inner = " ".join(f'{k}="{v}"' for k, v in attrs)
+            self._svg_parts.append(f"<{tag} {inner}>")
+        if tag == "table" and a.get("id") == "flagged-table":
+            self._in_flagged = True
+        if self._in_flagged and tag == "tr" and "data-row" in a:
+            self._row = {"row": int(a["data-row"]), "status": a["data-status"], "cells": []}
+        if self._row is not None and tag == "td":
+            self._cell = {"sort": a.get("data-sort"), "text": ""}
+        if tag == "div" and "card" in (a.get("class") or "") and "data-status" in a:
+            self._card = a["data-status"]
+        if tag == "span" and self._card and "data-count" in a:
+            self.cards[self._card] = int(a["data-count"])
+            self._card = None
+
+    def handle_endtag(self, tag):
+        if self._svg_depth:
+            self._svg_parts.append(f"</{tag}>")
+            if tag == "svg":
+                self._svg_depth -= 1
+                if not self._svg_depth:
+                    self.svgs.append("".join(self._svg_parts))
+                    self._svg_parts = []
+        if tag == "td" and self._cell is not None and self._row is not None:
+            self._row["cells"].append(self._cell)
+            self._cell = None
+        if tag == "tr" and self._row is not None:
+            self.table_rows.append(self._row)
+            self._row = None
+        if tag == "table":
+            self._in_flagged = False
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell["text"] += data
+
+
+def _parse(html: str) -> _Page:
+    page = _Page()
+    page.feed(html)
+    return page
+
+
+# --------------------------------------------------------------------------- self-contained page
+
+def test_page_fetches_nothing_from_a_network(screened):
+    html = screened["html"]
+    page = _parse(html)
+    assert page.images, "the report should carry figures"
+    for tag, name, value in page.fetching:
+        # only inline data and links inside the page itself
+        assert value.startswith("data:") or value.startswith("#"), (tag, name, value[:80])
+    assert not re.search(r"https?://", html), "no http(s) address anywhere in the page"
+    assert not re.search(r"<script[^>]*\bsrc\s*=", html, re.I)
+    assert not re.search(r"<link[^>]*rel=\"?stylesheet", html, re.I)
+    assert not re.search(r"@import|url\(", html, re.I)
+    # the page also tells the browser to fetch nothing (Content-Security-Policy)
+    assert "default-src 'none'" in html and "img-src data:" in html
+
+
+def test_every_image_is_a_sharp_png_and_every_svg_parses(screened):
+    page = _parse(screened["html"])
+    from PIL import Image
+
+    for uri in page.images:
+        head, _, payload = uri.partition(",")
+        assert head == "data:image/png;base64"
+        raw = base64.b64decode(payload, validate=True)
+        assert raw[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec, ISO/IEC 15948, section 5.2)
+        image = Image.open(io.BytesIO(raw))
+        image.load()
+        assert image.width >= 600 and image.height >= 300
+        assert min(image.info["dpi"]) >= 149.9  # pHYs chunk written by matplotlib: 150 dpi
+        pixels = np.asarray(image.convert("L"), dtype=float)
+        assert pixels.std() > 5, "a figure is blank"
+    assert page.svgs
+    for svg in page.svgs:
+        root = ET.fromstring(svg)
+        assert root.tag == "svg" and len(list(root)) >= 1
+
+
+def test_figures_named_in_summary_are_all_on_the_page(screened):
+    summary, page = screened["summary"], _parse(screened["html"])
+    expected = {"status_map", "histogram", "strips", "residual_map", "neighbour_scatter", "variogram"}
+    expected |= {f["figure"] for f in summary["lag_pairs"]["figures"]}
+    assert set(summary["figures"]) == expected
+    assert len(page.images) == len(expected)
+    assert len(summary["lag_pairs"]["figures"]) == 4  # one per default direction: W-E, SW-NE, S-N, SE-NW
+
+
+def test_caution_is_carried(screened):
+    html, summary = screened["html"], screened["summary"]
+    for words in ("not determinations", "field records", "licensed professional practice"):
+        assert words in summary["caution"]
+        assert words in html
+    assert html.count(summary["caution"].split(".")[0]) >= 2  # at the top and in the footer
+
+
+# --------------------------------------------------------------------------- numbers equal the GeoPackage
+
+def test_flagged_table_rows_equal_geopackage_suspect_and_review_rows(screened):
+    layer, page = screened["layer"], _parse(screened["html"])
+    flagged = layer[layer["screen_status"].isin(["suspect", "review"])]
+    assert len(flagged) >= 3  # the planted slip, sign error and spike
+    rows = page.table_rows
+    assert sorted(r["row"] for r in rows) == sorted(flagged.index.tolist())
+    # strongest first: suspect before review, then by score, largest first (ties by row), sorted here by pandas
+    expect = (flagged.assign(rank=flagged["screen_status"].map({"suspect": 0, "review": 1}), row=flagged.index)
+              .sort_values(["rank", "screen_score", "row"], ascending=[True, False, True]))
+    assert [r["row"] for r in rows] == expect.index.tolist()
+    for r in rows:
+        g = layer.loc[r["row"]]
+        rank, ident, status, value, exp, score, reasons = r["cells"]
+        assert ident["text"] == g["well_id"]
+        assert r["status"] == g["screen_status"]
+        assert float(value["sort"]) == g["level_m"]
+        assert float(exp["sort"]) == g["expected_value"]
+        assert float(score["sort"]) == g["screen_score"]
+        assert reasons["text"] == g["screen_reasons"]
+
+
+def test_summary_json_validates_and_its_numbers_equal_the_geopackage(screened):
+    import jsonschema
+
+    summary, layer = screened["summary"], screened["layer"]
+    schema = json.loads(SCHEMA_PATH.read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator.check_schema(schema)
+    jsonschema.validate(summary, schema, cls=jsonschema.Draft202012Validator)
+    counts = layer["screen_status"].value_counts()
+    assert summary["counts"] == {s: int(counts.get(s, 0)) for s in ("suspect", "review", "ok", "unscreened")}
+    assert sum(summary["counts"].values()) == len(layer) == summary["input"]["rows"]
+    assert _parse(screened["html"]).cards == summary["counts"]
+    rows = summary["flagged"]["rows"]
+    assert summary["flagged"]["count"] == len(rows) == counts.get("suspect", 0) + counts.get("review", 0)
+    for item in rows:
+        g = layer.loc[item["row"]]
+        assert (item["id"], item["status"], item["reasons"]) == (g["well_id"], g["screen_status"], g["screen_reasons"])
+        assert (item["value"], item["expected_value"], item["score"]) == (g["level_m"], g["expected_value"], g["screen_score"])
+    # the run record in the GeoPackage names the same CRS and counts
+    info = pyogrio.read_dataframe(screened["gpkg"], layer="run_info", read_geometry=False).set_index("key")["value"]
+    assert json.loads(info["counts"]) == summary["counts"]
+    assert info["work_crs"] == summary["crs"]["work"]
+
+
+def test_schema_rejects_a_broken_summary(screened):
+    import jsonschema
+
+    schema = json.loads(SCHEMA_PATH.read_text(encoding="utf-8"))
+    broken = json.loads(json.dumps(screened["summary"]))
+    broken["counts"]["suspect"] = -1
+    with pytest.raises(jsonschema.ValidationError, match="minimum"):
+        jsonschema.validate(broken, schema, cls=jsonschema.Draft202012Validator)
+    broken = json.loads(json.dumps(screened["summary"]))
+    broken["flagged"]["rows"][0]["status"] = "ok"
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(broken, schema, cls=jsonschema.Draft202012Validator)
+
+
+def test_quadrant_and_strip_numbers_equal_the_geopackage(screened):
+    summary, layer = screened["summary"], screened["layer"]
+    words = layer["local_moran_quadrant"]
+    counts = words[words != ""].value_counts()
+    assert summary["local_evidence"]["neighbour_scatter"]["quadrant_counts"] == {
+        w: int(counts.get(w, 0)) for w in ("high among high", "low among high", "low among low", "high among low")}
+    tables = set(pyogrio.list_layers(screened["gpkg"])[:, 0])
+    if "strips" in tables and summary["strips"].get("from_screen"):
+        strips = pyogrio.read_dataframe(screened["gpkg"], layer="strips")
+        assert len(strips) == len(summary["strips"]["rows"])
+        for got, row in zip(summary["strips"]["rows"], strips.itertuples()):
+            assert (got["n"], got["flagged"]) == (row.n, bool(row.flagged))
+            assert got["u"] == (None if math.isnan(row.u) else row.u)
+    if "variogram" in tables and not summary["variogram"].get("computed_for_report", True):
+        table = pyogrio.read_dataframe(screened["gpkg"], layer="variogram", read_geometry=False)
+        assert len(table) == len(summary["variogram"]["table"])
+        np.testing.assert_array_equal(table["pairs"].to_numpy(), [r["pairs"] for r in summary["variogram"]["table"]])
+
+
+def test_histogram_counts_equal_numpy_and_stem_leaf_counts_add_up(screened):
+    summary, layer = screened["summary"], screened["layer"]
+    values = layer["level_m"].to_numpy(dtype=float)
+    values = values[np.isfinite(values)]
+    hist = summary["distribution"]["histogram"]
+    counts, _ = np.histogram(values, bins=np.asarray(hist["edges"]))  # reference: numpy.histogram on the same edges
+    assert hist["counts"] == counts.tolist()
+    assert sum(hist["counts"]) == values.size == summary["distribution"]["all"]["n"]
+    assert sum(line["count"] for line in summary["distribution"]["stem_leaf"]["lines"]) == values.size
+    # the summary without suspects leaves out exactly the suspect rows
+    kept = summary["distribution"]["without_suspects"]
+    assert kept["n"] == values.size - summary["counts"]["suspect"]
+    assert math.isclose(summary["distribution"]["all"]["mean"], float(np.mean(values)), rel_tol=1e-12)
+
+
+# --------------------------------------------------------------------------- pieces checked against outside references
+
+def test_neighbour_scatter_equals_esda_local_moran_quadrants():
+    import esda
+    import libpysal
+
+    rng = np.random.default_rng(5)
+    n, k = 60, 6
+    xy = rng.uniform(0, 1000, (n, 2))
+    values = xy[:, 0] * 0.01 + rng.normal(0, 1, n)
+    d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
+    np.fill_diagonal(d, np.inf)
+    indices = np.argsort(d, axis=1)[:, :k]
+    judged = np.ones(n, dtype=bool)
+    z, lag = neighbour_mean_scatter(values, indices, judged)
+    w = libpysal.weights.W({i: indices[i].tolist() for i in range(n)})
+    w.transform = "r"
+    reference = esda.Moran_Local(values, w, permutations=0)  # esda: standardized z and its quadrant q
+    np.testing.assert_allclose(z, reference.z, rtol=1e-12)
+    np.testing.assert_allclose(lag, libpysal.weights.lag_spatial(w, reference.z), rtol=1e-12)
+    ours = np.where(z > 0, np.where(lag > 0, 1, 4), np.where(lag > 0, 2, 3))
+    np.testing.assert_array_equal(ours, reference.q)
+    # the slope of the neighbour mean on the value is global Moran's I for row-standardized weights
+    moran = esda.Moran(values, w, permutations=0)
+    assert math.isclose(float((z * lag).sum() / (z * z).sum()), moran.I, rel_tol=1e-10)
+
+
+def test_neighbour_scatter_leaves_out_unjudged_rows_and_neighbours():
+    values = np.array([1.0, 2.0, 3.0, 4.0, 100.0])
+    indices = np.array([[1, 2], [0, 4], [1, 3], [2, -1], [0, 1]])
+    judged = np.array([True, True, True, True, False])
+    z, lag = neighbour_mean_scatter(values, indices, judged)
+    y = values[:4]
+    zz = (y - y.mean()) / y.std()  # numpy std, n denominator, as esda and pointsift's autocorrelation use
+    assert np.isnan(z[4]) and np.isnan(lag[4])
+    np.testing.assert_allclose(lag[:4], [(zz[1] + zz[2]) / 2, zz[0], (zz[1] + zz[3]) / 2, zz[2]])
+
+
+def test_meridian_convergence_of_utm_matches_the_textbook_formula():
+    # Snyder (1987), Map Projections - A Working Manual, USGS PP 1395: on a transverse Mercator the grid
+    # convergence is close to atan(tan(lon - lon0) sin(lat)) (from memory; exact to about 1e-3 degree near the
+    # central meridian). UTM zone 33N has lon0 = 15 degrees.
+    from pyproj import Transformer
+
+    x, y = Transformer.from_crs("EPSG:4326", "EPSG:32633", always_xy=True).transform(17.0, 47.0)
+    expected = math.degrees(math.atan(math.tan(math.radians(2.0)) * math.sin(math.radians(47.0))))
+    got = grid_north_offset("EPSG:32633", x, y)
+    assert abs(abs(got) - expected) < 0.01
+
+
+@pytest.mark.parametrize(("span", "expected"), [(7300.0, 1000.0), (1.0, 0.2), (26_000.0, 5000.0), (480.0, 50.0)])
+def test_scale_bar_lengths_are_round(span, expected):
+    # 1-2-5 series of round lengths (common practice for map scale bars)
+    assert nice_length(span) == expected
+
+
+def test_large_layers_are_shaded_not_dropped(screened):
+    result = screened["run"].result
+    report = build_report(result, max_points=100, lag_pairs=False, variogram=False)
+    summary = report.summary
+    counts = summary["counts"]
+    assert summary["map"]["shaded"] == {"ok": counts["ok"]}
+    assert summary["map"]["drawn"]["suspect"] == counts["suspect"]
+    assert summary["flagged"]["count"] == counts["suspect"] + counts["review"]
+    rm = summary["local_evidence"]["residual_map"]
+    assert rm["sample_seed"] == 0 and rm["drawn"] == 100 and rm["points"] > 100
+    assert "shown as density shading" in report.html and "seeded sample" in report.html
+
+
+def test_status_map_labels_the_strongest_suspects():
+    xy = np.array([[0.0, 0.0], [1000.0, 0.0], [0.0, 1000.0], [1000.0, 1000.0], [500.0, 500.0]])
+    status = np.array(["suspect", "suspect", "review", "ok", "suspect"], dtype=object)
+    ids = np.array(["A", "B", "C", "D", "E"], dtype=object)
+    score = np.array([5.0, 9.0, 3.5, 0.2, 7.0])
+    fig, record = plot_status_map(xy, status, ids, score, crs_label="EPSG:32633", max_labels=2)
+    labels = [t.get_text() for t in fig.axes[0].texts if t.get_text() in set(ids)]
+    assert labels == ["B", "E"]
+    assert record["labelled"] == 2 and record["drawn"] == {"ok": 1, "unscreened": 0, "review": 1, "suspect": 3}
+
+
+def test_flagged_rows_order():
+    status = np.array(["ok", "review", "suspect", "review", "suspect", "unscreened"], dtype=object)
+    score = np.array([0.1, 9.0, 4.5, 3.2, 8.0, np.nan])
+    assert flagged_rows(status, score).tolist() == [4, 2, 1, 3]
+
+
+def test_format_number():
+    assert format_number(None) == "n/a"
+    assert format_number(12345) == "12,345"
+    assert format_number(301.74912345) == "301.749"
+    assert format_number(3968.54321, 3) == "3,969"
+
+
+# --------------------------------------------------------------------------- describe and the command line
+
+def test_describe_report_without_a_screen_says_what_is_missing(tmp_path):
+    import jsonschema
+
+    source = write_points(build_wells(150, seed=4), tmp_path / "wells.gpkg")
+    html_path, json_path = tmp_path / "d.html", tmp_path / "d.json"
+    code = main(["describe", str(source), "--value", "level_m", "--id", "well_id", "--report", str(html_path),
+                 "--summary-json", str(json_path)])
+    assert code == 0
+    summary = json.loads(json_path.read_text())
+    jsonschema.validate(summary, json.loads(SCHEMA_PATH.read_text()), cls=jsonschema.Draft202012Validator)
+    assert summary["command"] == "describe" and summary["counts"] is None and summary["flagged"] is None
+    sections = {s["id"]: s for s in summary["sections"]}
+    assert not sections["flagged"]["available"] and not sections["local"]["available"]
+    assert sections["distribution"]["available"] and sections["strips"]["available"]
+    html = html_path.read_text()
+    assert "described, not screened" in html
+    assert summary["distribution"]["all"]["n"] == 150
+
+
+def test_describe_report_of_a_screened_layer_uses_its_statuses(screened, tmp_path):
+    json_path = tmp_path / "again.json"
+    code = main(["describe", str(screened["gpkg"]), "--layer", "screened", "--value", "level_m", "--id", "well_id",
+                 "--summary-json", str(json_path)])
+    assert code == 0
+    summary = json.loads(json_path.read_text())
+    assert summary["counts"] == screened["summary"]["counts"]
+    assert [r["row"] for r in summary["flagged"]["rows"]] == [r["row"] for r in screened["summary"]["flagged"]["rows"]]
+
+
+def test_cli_refuses_to_replace_a_report_without_overwrite(tmp_path):
+    source = write_points(build_wells(60, seed=2), tmp_path / "wells.gpkg")
+    existing = tmp_path / "report.html"
+    existing.write_text("keep me")
+    runner = CliRunner()
+    from pointsift.cli import cli
+
+    result = runner.invoke(cli, ["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o.gpkg"),
+                                 "--report", str(existing)], standalone_mode=False)
+    assert result.exception is not None and "already exists" in str(result.exception)
+    assert existing.read_text() == "keep me"
+    assert main(["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o.gpkg"),
+                 "--report", str(existing)]) == 2
+    assert main(["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o2.gpkg"),
+                 "--report", str(tmp_path / "missing" / "r.html")]) == 2
+
+
+def test_report_write_refuses_the_input_and_missing_folders(screened, tmp_path):
+    report = build_report(screened["run"].result, lag_pairs=False, variogram=False)
+    with pytest.raises(OutputError, match="over the input"):
+        report.write(tmp_path / "in.gpkg", protect=(str(tmp_path / "in.gpkg"),))
+    with pytest.raises(OutputError, match="does not exist"):
+        report.write(None, tmp_path / "nowhere" / "s.json")
+    sections = {s["id"]: s for s in report.summary["sections"]}
+    assert not sections["lag_pairs"]["available"] and "Not available" in report.html
+    assert pd.isna(report.summary["lag_pairs"].get("pairs_flagged", np.nan))
