@@ -187,13 +187,13 @@ def find_pairs(
     Returns
     -------
     PairSet
-        Pairs sorted by tail, then head.
+        Pairs in an order fixed by the input and the seed (not sorted).
 
     Examples
     --------
     >>> ps = find_pairs([[0, 0], [1, 0], [0, 1], [5, 5]], 1.0)
-    >>> ps.tail.tolist(), ps.head.tolist(), ps.azimuth.tolist()
-    ([0, 0], [1, 2], [90.0, 0.0])
+    >>> sorted(zip(ps.tail.tolist(), ps.head.tolist(), ps.azimuth.tolist()))
+    [(0, 1, 90.0), (0, 2, 0.0)]
     """
     xy = _as_xy(xy)
     if not (isinstance(max_distance, (int, float, np.floating, np.integer)) and max_distance > 0
@@ -262,9 +262,8 @@ def find_pairs(
     with np.errstate(invalid="ignore"):
         azimuth = np.mod(np.degrees(np.arctan2(dx, dy)), 180.0)
     azimuth[distance == 0] = np.nan
-    order = np.argsort(tail * np.int64(xy.shape[0]) + head, kind="stable")
     return PairSet(
-        tail[order], head[order], distance[order], azimuth[order],
+        tail, head, distance, azimuth,
         max_distance, in_reach, point_fraction, pair_fraction, int(seed), estimated,
     )
 

@@ -214,16 +214,20 @@ def cressie_hawkins(differences) -> float:
     return float(np.mean(np.sqrt(np.abs(d))) ** 4 / (0.457 + 0.494 / d.size) / 2.0)
 
 
-def _class_estimates(class_index: np.ndarray, distance: np.ndarray, diff: np.ndarray, n_classes: int):
-    """Pairs, mean distance, Matheron and Cressie-Hawkins per class (vectorised)."""
+def _class_estimates(class_index: np.ndarray, distance: np.ndarray, squared: np.ndarray, root: np.ndarray,
+                     n_classes: int):
+    """Pairs, mean distance, Matheron and Cressie-Hawkins per class (vectorised).
+
+    ``squared`` and ``root`` are ``d^2`` and ``|d|^(1/2)`` of the pair differences.
+    """
     ok = class_index >= 0
     idx = class_index[ok]
     counts = np.bincount(idx, minlength=n_classes)
     with np.errstate(invalid="ignore", divide="ignore"):
         mean_d = np.bincount(idx, weights=distance[ok], minlength=n_classes) / counts
-        sq = np.bincount(idx, weights=diff[ok] ** 2, minlength=n_classes)
+        sq = np.bincount(idx, weights=squared[ok], minlength=n_classes)
         gamma_m = sq / (2.0 * counts)
-        root = np.bincount(idx, weights=np.sqrt(np.abs(diff[ok])), minlength=n_classes) / counts
+        root = np.bincount(idx, weights=root[ok], minlength=n_classes) / counts
         gamma_ch = root**4 / (0.457 + 0.494 / counts) / 2.0
     empty = counts == 0
     for arr in (mean_d, gamma_m, gamma_ch):
@@ -322,6 +326,8 @@ def empirical_variogram(
     n_classes = edges.size - 1
     cls = np.searchsorted(edges, pairs.distance, side="left") - 1
     cls[(cls >= n_classes) | ~ok] = -1
+    clean = np.where(ok, diff, 0.0)
+    squared, root = clean * clean, np.sqrt(np.abs(clean))
     frames = []
     for direction in (None, *directions):
         if direction is None:
@@ -330,7 +336,7 @@ def empirical_variogram(
             with np.errstate(invalid="ignore"):
                 inside = axial_difference(pairs.azimuth, direction) <= angle_tolerance
             c = np.where(inside, cls, -1)
-        counts, mean_d, g_m, g_ch = _class_estimates(c, pairs.distance, np.where(ok, diff, 0.0), n_classes)
+        counts, mean_d, g_m, g_ch = _class_estimates(c, pairs.distance, squared, root, n_classes)
         for name, gamma in zip(ESTIMATORS, (g_m, g_ch)):
             frames.append(pd.DataFrame({
                 "direction": direction_label(direction),
@@ -501,35 +507,71 @@ def _plain(value):
     return value
 
 
-def _fit_one(model: str, h: np.ndarray, g: np.ndarray, n: np.ndarray, h_max: float):
-    """Best WLS fit of one model over a few starts; returns (params, criterion, converged)."""
+def _structure_slope(model: str, h: np.ndarray, a: float) -> np.ndarray:
+    """Derivative of :func:`_structure` with respect to the range parameter ``a``."""
+    r = np.abs(h) / a
+    dr_da = -r / a
+    if model == "spherical":
+        return np.where(r < 1.0, (1.5 - 1.5 * r**2) * dr_da, 0.0)
+    if model == "exponential":
+        return np.exp(-r) * dr_da
+    return 2.0 * r * np.exp(-(r**2)) * dr_da
+
+
+def _fit_one(model: str, h: np.ndarray, g: np.ndarray, n: np.ndarray, h_max: float, start=None):
+    """Best WLS fit of one model over a few starts; returns (params, criterion, converged).
+
+    ``start`` (nugget, partial sill, range parameter) is tried first; the
+    grid of starts is used when it is absent or does not converge.
+    """
     # Work in units of the largest lag and the largest gamma for conditioning.
     gs = float(np.max(g)) if np.max(g) > 0 else 1.0
     hs = h_max
     hh, gg = h / hs, g / gs
     w = np.sqrt(n.astype(float))
 
-    def residual(theta):
-        model_g = theta[0] + theta[1] * _structure(model, hh, theta[2])
-        return w * (gg / np.maximum(model_g, 1e-12) - 1.0)
+    def model_values(theta):
+        return np.maximum(theta[0] + theta[1] * _structure(model, hh, theta[2]), 1e-12)
 
-    best = None
+    def residual(theta):
+        return w * (gg / model_values(theta) - 1.0)
+
+    def jacobian(theta):
+        factor = -w * gg / model_values(theta) ** 2
+        return np.column_stack([
+            factor,
+            factor * _structure(model, hh, theta[2]),
+            factor * theta[1] * _structure_slope(model, hh, theta[2]),
+        ])
+
     first = float(gg[0])
     top = float(np.max(gg))
     factor = _PRACTICAL_FACTOR[model]
-    for nugget0 in (0.0, 0.5 * first):
-        for practical0 in (0.2, 0.5, 1.0):
-            x0 = np.array([nugget0, max(top - nugget0, 1e-3), practical0 / factor])
+    grid = [np.array([nugget0, max(top - nugget0, 1e-3), practical0 / factor])
+            for nugget0 in (0.0, 0.5 * first) for practical0 in (0.2, 0.5, 1.0)]
+    lower, upper = np.array([0.0, 0.0, 1e-4]), np.array([np.inf, np.inf, 20.0])
+    starts = grid
+    if start is not None and np.all(np.isfinite(start)):
+        x0 = np.asarray(start, dtype=float) / np.array([gs, gs, hs])
+        starts = [np.clip(x0, lower + np.array([0.0, 1e-6, 0.0]), upper * 0.99)]
+
+    def run(candidates, best):
+        for x0 in candidates:
             try:
-                res = least_squares(residual, x0, bounds=([0.0, 0.0, 1e-4], [np.inf, np.inf, 20.0]),
+                res = least_squares(residual, x0, jac=jacobian, bounds=(lower, upper),
                                     method="trf", x_scale="jac", max_nfev=2000)
             except (ValueError, FloatingPointError):
                 continue
             crit = float(np.sum(res.fun**2))
-            ok = bool(res.success) and np.all(np.isfinite(res.x))
+            ok = bool(res.success) and bool(np.all(np.isfinite(res.x)))
             key = (not ok, crit)
             if best is None or key < best[0]:
                 best = (key, res.x.copy(), crit, ok)
+        return best
+
+    best = run(starts, None)
+    if starts is not grid and (best is None or not best[3]):
+        best = run(grid, best)
     if best is None:
         return np.array([np.nan, np.nan, np.nan]), float("inf"), False
     theta = best[1] * np.array([gs, gs, hs])
@@ -546,6 +588,7 @@ def fit_variogram(
     min_class_pairs: int = MIN_CLASS_PAIRS,
     estimator: str = "matheron",
     direction: str = "all",
+    start=None,
 ) -> VariogramFit:
     """Fit a spherical, exponential or Gaussian model with nugget by Cressie (1985) WLS.
 
@@ -562,6 +605,9 @@ def fit_variogram(
         Pairs a class needs to count as well filled in the checks.
     estimator, direction : str
         Labels kept in the result.
+    start : tuple of float, optional
+        Starting (nugget, partial sill, range parameter), tried before the
+        default grid of starts (which is used if it does not converge).
 
     Returns
     -------
@@ -590,7 +636,7 @@ def fit_variogram(
                             {}, estimator, direction)
     h_max = float(max(h.max(), cutoff if math.isfinite(cutoff) else 0.0))
     tried = MODELS if model == "auto" else (model,)
-    fits = {m: _fit_one(m, h, g, n, h_max) for m in tried}
+    fits = {m: _fit_one(m, h, g, n, h_max, start) for m in tried}
     candidates = {m: f[1] for m, f in fits.items()}
     chosen = min(tried, key=lambda m: (not fits[m][2], fits[m][1]))
     theta, crit, converged = fits[chosen]
@@ -760,8 +806,10 @@ def analyse_variogram(
     for d in emp.directions:
         label = direction_label(d)
         c = emp.curve(label, fit_estimator)
+        start = (fit.nugget, fit.partial_sill, fit.range_parameter) if fit.converged else None
         directional[label] = fit_variogram(c["mean_distance"], c["gamma"], c["pairs"], model=dir_model,
-                                           cutoff=float(e[-1]), estimator=fit_estimator, direction=label)
+                                           cutoff=float(e[-1]), estimator=fit_estimator, direction=label,
+                                           start=start)
     return VariogramAnalysis(emp, fit, directional, anisotropy_hint(directional), fit_estimator)
 
 
