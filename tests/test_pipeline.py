@@ -181,3 +181,40 @@ def test_regional_gradient_alone_makes_no_clusters():
     cluster = "part of a cluster"
     assert raw["screen_reasons"].str.contains(cluster).mean() > 0.3
     assert detrended["screen_reasons"].str.contains(cluster).mean() < 0.02
+
+
+def test_lag_pairs_layer_variogram_table_and_reasons(tmp_path):
+    # lag-pair screen and variogram wired into the screen (issue 4): a spike on a smooth
+    # surface is the culprit of its flagged pairs; outputs read back with pyogrio
+    import pyogrio
+
+    from pointsift.run import write_screen
+
+    rng = np.random.default_rng(4)
+    xy = rng.uniform(0, 4000, (400, 2))
+    level = 100 + 0.003 * xy[:, 0] + 2 * np.sin(xy[:, 0] / 700) * np.cos(xy[:, 1] / 900) + rng.normal(0, 0.02, 400)
+    spike = int(np.argmin(np.hypot(xy[:, 0] - 2000, xy[:, 1] - 2000)))
+    level[spike] += 4.0
+    ids = np.array([f"W{i:03d}" for i in range(400)], dtype=object)
+    wells = gpd.GeoDataFrame({"well": ids, "level_m": level},
+                             geometry=gpd.points_from_xy(xy[:, 0] + ORIGIN[0], xy[:, 1] + ORIGIN[1]), crs="EPSG:32633")
+    result = screen_frame(wells, ScreenConfig(value="level_m", id="well", **FAST))
+    assert "lag pairs:" in result.frame.loc[spike, "screen_reasons"]
+    assert result.frame["screen_reasons"].str.contains("lag pairs:").sum() == 1
+    layer = result.tables["lag_pairs"]
+    assert len(layer) >= 3 and (layer.geom_type == "LineString").all()
+    assert layer.crs == result.prepared.work_crs
+    touching = (layer["tail_id"] == ids[spike]) | (layer["head_id"] == ids[spike])
+    assert (layer.loc[touching, "culprit_id"] == ids[spike]).all()
+    assert list(result.tables["variogram"].columns) == [
+        "direction", "estimator", "lag_low", "lag_high", "mean_distance", "pairs", "gamma"]
+    model = result.run_info["variogram"]["model"]
+    assert {"nugget", "partial_sill", "practical_range", "range_parameter", "trustworthy", "reasons"} <= set(model)
+    assert result.run_info["lag_pairs"]["culprits"] == 1
+    out = write_screen(result, tmp_path / "out.gpkg")
+    names = {name for name, _ in pyogrio.list_layers(out)}
+    assert {"lag_pairs", "variogram", "run_info"} <= names
+    back = pyogrio.read_dataframe(out, layer="variogram")
+    assert len(back) == len(result.tables["variogram"])
+    lines = pyogrio.read_dataframe(out, layer="lag_pairs")
+    np.testing.assert_allclose(shapely.length(lines.geometry.values), lines["separation"], rtol=1e-9)
