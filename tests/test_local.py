@@ -64,11 +64,6 @@ def test_distance_scale_single_bin_is_the_normal_mad():
     assert s[0] == pytest.approx(stats.iqr(normal) / 1.349, rel=0.05)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="the slope ridge (1e-3 x sum of weights) biases predictions on a steep plane with little noise: "
-    "errors up to 0.43 m at 1 mm noise on this layout (0.0015 m with the ridge removed)",
-)
 def test_exact_plane_is_predicted_exactly():
     rng = np.random.default_rng(3)
     xy = rng.uniform(0, 3000, (300, 2))

@@ -153,7 +153,10 @@ def _batched_wls(design: np.ndarray, v: np.ndarray, w: np.ndarray, ok: np.ndarra
     weighted_t = weighted.transpose(0, 2, 1)
     a = weighted_t @ design
     b = (weighted_t @ v[:, :, None])[:, :, 0]
-    ridge = 1e-3 * np.maximum(w.sum(axis=1), 1e-12)
+    # relative to the terms' own size: enough to keep a singular row solvable,
+    # far too small to bias a well-determined slope (1e-6 of the mean diagonal)
+    diagonal = np.einsum("nii->ni", a)[:, ridge_from:]
+    ridge = 1e-6 * np.maximum(diagonal.mean(axis=1), 1e-12)
     for term in range(ridge_from, p):
         a[:, term, term] += ridge
     a[~ok] = np.eye(p)
