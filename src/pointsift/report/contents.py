@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import logging
 import math
+import os
 import time
 from collections import Counter
 from dataclasses import dataclass, field
@@ -206,9 +207,9 @@ def collect(
         expected = frame["expected_value"].to_numpy(dtype=float)
     screened = status is not None
     value_column = run_info.get("value_column")
-    where = run_info.get("input_path") or "the layer"
+    where = os.path.basename(run_info.get("input_path") or "") or "the layer"
     if run_info.get("input_layer"):
-        where = f"{where}, layer {run_info['input_layer']}"
+        where = f"{where} (layer {run_info['input_layer']})"
     summary: dict = {
         "format": SUMMARY_FORMAT,
         "format_version": SUMMARY_VERSION,

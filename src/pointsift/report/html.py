@@ -54,7 +54,7 @@ p.lead { margin:4px 0 12px; color:var(--muted); }
 .card.ok { border-top:4px solid #0072B2; } .card.unscreened { border-top:4px solid #7f7f7f; }
 table { border-collapse:collapse; font-size:.9rem; }
 table.kv { width:100%; }
-table.kv th { text-align:left; font-weight:600; width:15em; vertical-align:top; padding:4px 10px 4px 0; color:#333; }
+table.kv th { text-align:left; font-weight:600; width:12em; vertical-align:top; padding:4px 10px 4px 0; color:#333; }
 table.kv td { padding:4px 0; overflow-wrap:anywhere; }
 table.kv tr + tr > * { border-top:1px solid var(--soft); }
 table.data { width:100%; }
@@ -67,6 +67,7 @@ figure { margin:8px 0 18px; }
 figure img { max-width:100%; height:auto; border:1px solid var(--line); border-radius:6px; background:#fff; }
 figcaption { color:var(--muted); font-size:.88rem; margin-top:4px; }
 .two { display:grid; grid-template-columns: minmax(0, 1.15fr) minmax(0, 1fr); gap:20px; align-items:start; }
+.two.facts { grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap:28px; }
 @media (max-width: 900px) { .two { grid-template-columns: 1fr; } }
 pre.stem { font-family: ui-monospace, "DejaVu Sans Mono", Menlo, Consolas, monospace; font-size:.8rem; line-height:1.25; background:var(--soft); padding:10px; border-radius:6px; overflow:auto; max-height:520px; margin:0; }
 .unavailable { padding:10px 14px; background:var(--soft); border:1px dashed #aab2bc; border-radius:6px; color:#333; }
@@ -299,7 +300,8 @@ def _run_section(summary: dict) -> str:
     if lac:
         rows.append(("Local Moran's I / Gi*", f"{format_number(lac.get('permutations'))} conditional permutations, "
                      f"{_text(lac.get('p_adjustment'))} at a false discovery rate of {format_number(lac.get('fdr'))}"))
-    out.append(_kv(rows))
+    half = 8  # input facts on the left, how the screen worked on the right
+    out.append(f'<div class="two facts"><div>{_kv(rows[:half])}</div><div>{_kv(rows[half:])}</div></div>')
     params = summary.get("parameters") or {}
     if params:
         prow = "".join(f"<tr><th scope=\"row\"><code>{escape(k)}</code></th><td>{_text(_param(v))}</td></tr>" for k, v in params.items())
