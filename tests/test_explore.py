@@ -159,8 +159,12 @@ def test_describe_function_on_a_prepared_layer():
     description = describe(prepared, directions=(45,), trend="polish", figures=True)
     assert set(description.strips.table["direction"]) == {45.0}
     assert description.trend_info["method"].startswith("median polish on")
-    assert set(description.figures) == {"histogram", "strip_profiles"}
+    assert set(description.figures) == {"histogram", "strip_profiles", "variogram", "variogram_cloud",
+                                        "sqrt_difference_cloud"}
     layers = description_layers(description)
+    assert list(layers["variogram"].columns) == ["direction", "estimator", "lag_low", "lag_high",
+                                                 "mean_distance", "pairs", "gamma"]
+    assert description.variogram_basis.startswith("residuals from the trend (median polish")
     assert isinstance(layers["strips"], gpd.GeoDataFrame) and layers["strips"].crs == prepared.work_crs
     assert list(layers["points"].columns[-3:]) == ["strip_45", "trend_fitted", "trend_residual"]
     none = describe(prepared, trend="none")

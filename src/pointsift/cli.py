@@ -325,7 +325,7 @@ def _echo_description(description, value_column: str, where: str) -> None:
 @click.option("--stem-unit", type=click.FloatRange(min=0, min_open=True), default=None, help="Stem unit of the stem-and-leaf display, a power of ten (default: chosen).")
 @click.option("--stem-split", type=click.Choice(["1", "2", "5"]), default=None, help="Lines per stem (default: chosen).")
 @click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")
-@click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png and strips.png into.")
+@click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png, strips.png and the variogram figures into.")
 @click.option("--with-screen", is_flag=True, help="Screen first, and also summarise without the suspect rows.")
 @click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
 @click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
@@ -380,10 +380,15 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
     if not ctx.obj.get("quiet"):
         _echo_description(description, config.value, where)
     if figures_dir is not None:
-        for name, file_name in (("histogram", "histogram.png"), ("strip_profiles", "strips.png")):
-            description.figures[name].savefig(os.path.join(figures_dir, file_name), dpi=150)
+        saved = []
+        for name, file_name in (("histogram", "histogram.png"), ("strip_profiles", "strips.png"),
+                                ("variogram", "variogram.png"), ("variogram_cloud", "variogram_cloud.png"),
+                                ("sqrt_difference_cloud", "sqrt_difference_cloud.png")):
+            if name in description.figures:
+                description.figures[name].savefig(os.path.join(figures_dir, file_name), dpi=150)
+                saved.append(file_name)
         if not ctx.obj.get("quiet"):
-            click.echo(f"Wrote histogram.png and strips.png to {figures_dir}.")
+            click.echo(f"Wrote {', '.join(saved[:-1])} and {saved[-1]} to {figures_dir}.")
     if out_path is not None:
         layers = description_layers(description)
         layers["run_info"] = run_info_table(
@@ -399,6 +404,10 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
                 "work_crs": prepared.work_crs.to_string(),
                 "strip_widths_m": {f"{d:g}": w for d, w in description.strips.widths.items()},
                 "trend": description.trend_info,
+                "variogram": (
+                    {"values": description.variogram_basis, **description.variogram.run_info()}
+                    if description.variogram is not None else {"note": "no variogram: too few usable points"}
+                ),
                 "notes": list(prepared.notes),
             }
         )

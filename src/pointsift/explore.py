@@ -59,7 +59,14 @@ class Description:
     trend_info : dict
         Method and shares of variance explained, or the reason there is no trend.
     figures : dict
-        ``{"histogram": Figure, "strip_profiles": Figure}`` when requested.
+        ``{"histogram": Figure, "strip_profiles": Figure}`` when requested
+        (plus ``variogram``, ``variogram_cloud`` and ``sqrt_difference_cloud``
+        when a variogram was computed).
+    variogram : VariogramAnalysis or None
+        Semivariograms and model fit of the values (of the trend residuals
+        when a trend was fitted); None when they cannot be computed.
+    variogram_basis : str
+        What the variogram was computed on.
     """
 
     prepared: Prepared
@@ -71,6 +78,8 @@ class Description:
     trend: TrendSurface | PolishSurface | None
     trend_info: dict
     figures: dict = field(default_factory=dict)
+    variogram: object = None
+    variogram_basis: str = ""
 
     def strips_layer(self) -> gpd.GeoDataFrame:
         """The strip table as a polygon layer in the work CRS."""
@@ -181,6 +190,7 @@ def describe(
         prepared.xy[:, 0], prepared.xy[:, 1], values, directions, strip_width, min_n=min_strip_n
     )
     fit, trend_info = _fit_trend(prepared, trend)
+    variogram, variogram_basis = _variogram(prepared, values, fit, trend_info)
     drawn = {}
     if figures:
         from .methods.strips import plot_strip_profiles
@@ -188,6 +198,12 @@ def describe(
 
         drawn["histogram"] = plot_histogram(values[usable], bin_width, label=value_label)
         drawn["strip_profiles"] = plot_strip_profiles(strips.table, label=value_label, flag_u=strips.flag_u)
+        if variogram is not None:
+            from .methods.variogram import plot_sqrt_difference_cloud, plot_variogram, plot_variogram_cloud
+
+            drawn["variogram"] = plot_variogram(variogram)
+            drawn["variogram_cloud"] = plot_variogram_cloud(variogram.empirical)
+            drawn["sqrt_difference_cloud"] = plot_sqrt_difference_cloud(variogram.empirical)
     return Description(
         prepared=prepared,
         summary=summary,
@@ -198,7 +214,24 @@ def describe(
         trend=fit,
         trend_info=trend_info,
         figures=drawn,
+        variogram=variogram,
+        variogram_basis=variogram_basis,
     )
+
+
+def _variogram(prepared: Prepared, values: np.ndarray, fit, trend_info: dict):
+    """Variograms of the values, or of the trend residuals when a trend was fitted (as the screen does)."""
+    from .methods.variogram import analyse_variogram
+
+    basis = "values"
+    if fit is not None:
+        values = np.where(prepared.usable, fit.residual, np.nan)
+        basis = f"residuals from the trend ({trend_info.get('method', '')})"
+    try:
+        return analyse_variogram(prepared.xy, values), basis
+    except InputError as exc:
+        log.info("no variogram: %s", exc)
+        return None, basis
 
 
 def description_layers(description: Description) -> dict:
@@ -210,7 +243,7 @@ def description_layers(description: Description) -> dict:
         ``strips`` (polygon layer, work CRS), ``points`` (the input rows with
         their strip numbers and the trend's fitted value and residual, input
         CRS), and the tables ``summary``, ``stem_leaf``, ``unscreened`` and
-        ``trend``.
+        ``trend`` (and ``variogram`` when one was computed).
     """
     prepared = description.prepared
     points = prepared.frame.copy()
@@ -240,4 +273,5 @@ def description_layers(description: Description) -> dict:
         "stem_leaf": stem,
         "unscreened": unscreened.astype({"reason": str, "rows": "int64"}),
         "trend": pd.DataFrame(trend_rows, columns=["key", "value"]),
+        **({"variogram": description.variogram.table} if description.variogram is not None else {}),
     }
