@@ -684,17 +684,14 @@ def anisotropy_hint(fits, ratio: float = ANISOTROPY_RATIO) -> dict:
     -------
     dict
         ``hint`` (bool), ``ratio``, ``major_direction``, ``minor_direction``,
-        ``ranges`` (per usable direction), ``text``. Only converged fits with
-        the range inside their lag span are compared.
+        ``ranges`` (per usable direction), ``text``. Only trustworthy fits
+        are compared.
     """
-    usable = {
-        d: f.practical_range for d, f in fits.items()
-        if f.converged and math.isfinite(f.practical_range) and f.lag_span[0] <= f.practical_range <= f.cutoff
-    }
+    usable = {d: f.practical_range for d, f in fits.items() if f.trustworthy}
     out = {"hint": False, "ratio": None, "major_direction": None, "minor_direction": None,
            "ranges": {d: float(r) for d, r in usable.items()}, "threshold": float(ratio)}
     if len(usable) < 2:
-        out["text"] = (f"{len(usable)} direction(s) with a usable range fit; anisotropy cannot be judged.")
+        out["text"] = (f"{len(usable)} direction(s) with a trustworthy fit; anisotropy cannot be judged.")
         return out
     major = max(usable, key=usable.get)
     minor = min(usable, key=usable.get)
@@ -1024,16 +1021,29 @@ def plot_variogram(analysis: VariogramAnalysis):
     emp = analysis.empirical
     fig = Figure(figsize=(11, 4.2), layout="constrained")
     left, right = fig.subplots(1, 2)
-    for est, marker in zip(ESTIMATORS, ("o", "s")):
-        c = emp.curve("all", est)
-        left.plot(c["mean_distance"], c["gamma"], marker, label=est.replace("_", "-"), ms=5)
     h = np.linspace(0, emp.edges[-1], 200)[1:]
     fit = analysis.fit
+    robust = emp.curve("all", "cressie_hawkins")["gamma"].to_numpy()
+    top = np.nanmax(robust) if np.isfinite(robust).any() else np.nan
+    if fit.model in MODELS and math.isfinite(fit.range_parameter):
+        top = np.nanmax([top, fit.sill])
+    for est, marker in zip(ESTIMATORS, ("o", "s")):
+        c = emp.curve("all", est)
+        gamma = c["gamma"].to_numpy()
+        label = est.replace("_", "-")
+        # A few wild values can lift Matheron's estimate far above the robust one;
+        # then keep the axis on the robust scale and say how far off it went.
+        if est == "matheron" and np.isfinite(top) and top > 0 and np.nanmax(gamma, initial=0) > 3 * top:
+            label += f" (off the scale, up to {np.nanmax(gamma):.3g}: wild values inflate it)"
+            gamma = np.where(gamma > 1.6 * top, np.nan, gamma)
+        left.plot(c["mean_distance"], gamma, marker, label=label, ms=5)
     if fit.model in MODELS and math.isfinite(fit.range_parameter):
         status = "trustworthy" if fit.trustworthy else "not trustworthy"
         left.plot(h, fit.gamma(h), "-", color="k", lw=1,
                   label=f"{fit.model}: nugget {fit.nugget:.3g}, sill {fit.sill:.3g}, "
                         f"range {fit.practical_range:.4g} ({status})")
+    if np.isfinite(top) and top > 0:
+        left.set_ylim(0, 1.6 * top)
     left.set_xlabel("separation")
     left.set_ylabel("semivariance")
     left.set_title("Omnidirectional", fontsize=10)
