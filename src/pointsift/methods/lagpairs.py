@@ -949,12 +949,31 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
         if inside.size > max_points:
             inside = np.sort(rng.choice(inside, size=max_points, replace=False))
             note = f" ({max_points} of {int((~out).sum())} shown)"
-        ax.scatter(tail_v[inside], head_v[inside], s=6, c="0.45", alpha=0.6, linewidths=0)
-        ax.scatter(tail_v[sel[out]], head_v[sel[out]], s=18, c="tab:red", linewidths=0, label="flagged")
         finite = np.concatenate([tail_v[sel], head_v[sel]])
         finite = finite[np.isfinite(finite)]
+        lo = hi = None
         if finite.size:
-            lo, hi = float(finite.min()), float(finite.max())
+            # Axes on the bulk of the values (quartiles +/- 3 IQR, within the data), the
+            # same on both axes; a wild value would otherwise squeeze the whole cloud
+            # into a corner. Points beyond are drawn on the frame as triangles.
+            q1, q3 = np.percentile(finite, [25, 75])
+            q_lo = max(float(finite.min()), q1 - 3 * (q3 - q1))
+            q_hi = min(float(finite.max()), q3 + 3 * (q3 - q1))
+            pad = 0.05 * (q_hi - q_lo) if q_hi > q_lo else max(abs(q_hi), 1.0) * 0.05
+            lo, hi = float(q_lo - pad), float(q_hi + pad)
+        flagged_rows = sel[out]
+        for rows_, size, colour in ((inside, 6, "0.45"), (flagged_rows, 18, "tab:red")):
+            tx, hy = tail_v[rows_], head_v[rows_]
+            if lo is not None:
+                beyond = (tx < lo) | (tx > hi) | (hy < lo) | (hy > hi)
+                ax.scatter(np.clip(tx[beyond], lo, hi), np.clip(hy[beyond], lo, hi), s=size + 10, c=colour,
+                           marker="^", linewidths=0)
+                tx, hy = tx[~beyond], hy[~beyond]
+            ax.scatter(tx, hy, s=size, c=colour, alpha=0.6 if colour != "tab:red" else 1.0, linewidths=0)
+        if lo is not None:
+            n_beyond = int(np.sum((tail_v[sel] < lo) | (tail_v[sel] > hi) | (head_v[sel] < lo) | (head_v[sel] > hi)))
+            if n_beyond:
+                note += f"\n{n_beyond} beyond the axes (triangles on the frame)"
             line = np.array([lo, hi])
             ax.plot(line, line, color="k", lw=0.8)
             row = classes.loc[(direction_label(direction), k + 1)]
@@ -962,6 +981,8 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
                 for sign in (-1, 1):
                     offset = row["band_centre"] + sign * screen.threshold * row["band_scale"]
                     ax.plot(line, line + offset, color="tab:blue", lw=0.8, ls="--")
+            ax.set_xlim(lo, hi)
+            ax.set_ylim(lo, hi)
         lo_edge, hi_edge = screen.lag_edges[k]
         ax.set_title(f"lag {k + 1}: ({lo_edge:.4g}, {hi_edge:.4g}]\n{sel.size} pairs, {int(out.sum())} flagged{note}",
                      fontsize=8)
