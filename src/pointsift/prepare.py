@@ -10,6 +10,7 @@ one, otherwise a Lambert azimuthal equal-area projection centred on them).
 from __future__ import annotations
 
 import logging
+import re
 from dataclasses import dataclass, field
 
 import geopandas as gpd
@@ -75,6 +76,14 @@ def _format_number(value: float) -> str:
     return f"{value:g}"
 
 
+_THOUSANDS = re.compile(r"[+-]?\d{1,3}(?:,\d{3})+(?:\.\d*)?")
+_DECIMAL_COMMA = re.compile(r"[+-]?\d+,\d+")
+
+
+def _drop_thousands_commas(text: str) -> str:
+    return text.replace(",", "") if _THOUSANDS.fullmatch(text) else text
+
+
 def parse_values(column: pd.Series, sentinels: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray]:
     """Parse a value column into floats and a reason for each unusable row.
 
@@ -106,12 +115,16 @@ def parse_values(column: pd.Series, sentinels: tuple[float, ...]) -> tuple[np.nd
         values = column.to_numpy(dtype=float, na_value=np.nan)
     else:
         text = column.astype("object")
-        stripped = text.map(lambda v: v.strip().replace(",", "") if isinstance(v, str) else v)
+        # commas are dropped only where they group thousands ("1,234.5"); a
+        # decimal comma ("213,17") must not silently become 21317
+        stripped = text.map(lambda v: _drop_thousands_commas(v.strip()) if isinstance(v, str) else v)
         values = pd.to_numeric(stripped, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
         blank_text = stripped.map(lambda v: isinstance(v, str) and v == "").to_numpy(dtype=bool)
         bad_text = np.isnan(values) & text.notna().to_numpy() & ~blank_text
         for row in np.flatnonzero(bad_text):
-            reasons[row] = f"value {str(text.iloc[row])[:40]!r} is not a number"
+            raw = str(text.iloc[row])[:40]
+            hint = f" (a decimal comma? write {raw.strip().replace(',', '.')!r})" if _DECIMAL_COMMA.fullmatch(raw.strip()) else ""
+            reasons[row] = f"value {raw!r} is not a number{hint}"
         reasons[blank_text] = "no value (blank)"
     missing = np.isnan(values) & (reasons == "")
     reasons[missing] = "no value (blank)"
