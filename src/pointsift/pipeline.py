@@ -234,7 +234,9 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     """
     started = time.perf_counter()
     timings: dict[str, float] = {}
-    clash = [c for c in ADDED_COLUMNS if c in frame.columns]
+    # GeoPackage (SQLite) column names are case-insensitive: SCREEN_STATUS collides too
+    added_lower = {name.lower() for name in ADDED_COLUMNS}
+    clash = [str(c) for c in frame.columns if str(c).lower() in added_lower]
     if clash:
         raise InputError(
             f"The input already has column(s) {', '.join(clash)} (is it a pointsift output?). "
