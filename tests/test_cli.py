@@ -174,7 +174,7 @@ def _swapped_csv(tmp_path):
 
 def _collision(tmp_path):
     wells = build_wells(30, seed=5)
-    wells["screen_status"] = "checked"
+    wells["SCREEN_STATUS"] = "checked"  # SQLite names are case-insensitive: a collision too
     return write_points(wells, tmp_path / "again.gpkg")
 
 
@@ -188,7 +188,7 @@ def _collision(tmp_path):
         (lambda p: write_points(build_wells(30), p / "w.csv"), [], r"has no CRS.*Pass --crs EPSG:XXXX"),
         (lambda p: write_points(build_wells(30), p / "w.gpkg"), ["--crs", "EPSG:4326"], r"declares EPSG:32633 but --crs says EPSG:4326"),
         (_swapped_csv, ["--crs", "EPSG:4326"], r"40 of 40 points .* \(first: W0000, W0001, W0002, W0003, W0004\)\. Longitude and latitude look swapped"),
-        (_collision, [], r"already has column\(s\) screen_status"),
+        (_collision, [], r"already has column\(s\) SCREEN_STATUS"),
         (lambda p: write_points(build_wells(30, crs=None), p / "w.csv", xy_names=("e", "n")), [], r"no recognisable coordinate columns.*--x COLUMN --y COLUMN"),
     ],
     ids=["several-layers", "unknown-layer", "missing-value-column", "non-point", "no-crs", "crs-contradicts", "swapped", "column-collision", "no-coordinates"],

@@ -49,6 +49,14 @@ def test_added_column_name_colliding_with_an_input_column_is_an_error():
         screen(wells, value="level_m")
 
 
+def test_added_column_collision_ignores_case():
+    # GeoPackage (SQLite) column names are case-insensitive
+    wells = build_wells(50, seed=13)
+    wells["Screen_Status"] = "checked"
+    with pytest.raises(InputError, match=r"already has column\(s\) Screen_Status"):
+        screen(wells, value="level_m")
+
+
 def test_isolated_points_are_unscreened_with_why():
     wells = build_wells(200, seed=14)
     far = wells.iloc[[0, 1, 2]].copy()

@@ -34,6 +34,10 @@ def _prepare(gdf, **changes):
     [
         ("12.5", 12.5, ""),
         (" 1,234.5 ", 1234.5, ""),  # thousands separator and blanks, common practice in exported sheets
+        ("-1,234,567.25", -1234567.25, ""),
+        # a decimal comma is not a thousands separator: never read 213,17 as 21317
+        ("213,17", np.nan, "value '213,17' is not a number (a decimal comma? write '213.17')"),
+        ("12,5", np.nan, "value '12,5' is not a number (a decimal comma? write '12.5')"),
         ("n/a", np.nan, "value 'n/a' is not a number"),
         ("dry", np.nan, "value 'dry' is not a number"),
         ("", np.nan, "no value (blank)"),

@@ -956,9 +956,20 @@ def plot_variogram_cloud(empirical: EmpiricalVariogram, *, max_points: int = 50_
     d, diff, note = _cloud_sample(empirical.pairs, empirical.differences, max_points, seed)
     fig = Figure(figsize=(6.5, 4.2), layout="constrained")
     ax = fig.subplots()
-    ax.scatter(d, 0.5 * diff**2, s=4, c="0.4", alpha=0.5, linewidths=0)
+    half_sq = 0.5 * diff**2
     curve = empirical.curve("all", "matheron")
+    positive = half_sq[half_sq > 0]
+    # Wild values put pairs orders of magnitude above the bulk: then a log axis shows both.
+    log_axis = positive.size > 0 and np.max(positive) > 1000 * np.median(positive)
+    if log_axis:
+        floor = float(np.percentile(positive, 1))
+        half_sq = np.maximum(half_sq, floor)
+        ax.set_yscale("log")
+        note += "\nlog axis; zero differences drawn at the 1st percentile"
+    ax.scatter(d, half_sq, s=4, c="0.4", alpha=0.5, linewidths=0)
     ax.plot(curve["mean_distance"], curve["gamma"], "o-", color="tab:blue", ms=4, label="Matheron")
+    robust = empirical.curve("all", "cressie_hawkins")
+    ax.plot(robust["mean_distance"], robust["gamma"], "s-", color="tab:orange", ms=4, label="Cressie-Hawkins")
     ax.set_xlabel("separation")
     ax.set_ylabel("half squared difference")
     ax.set_title(f"Variogram cloud{note}", fontsize=10)
