@@ -169,7 +169,8 @@ def test_every_image_is_a_sharp_png_and_every_svg_parses(screened):
 
 def test_figures_named_in_summary_are_all_on_the_page(screened):
     summary, page = screened["summary"], _parse(screened["html"])
-    expected = {"status_map", "histogram", "strips", "residual_map", "neighbour_scatter", "variogram"}
+    expected = {"status_map", "histogram", "histogram_without_suspects", "strips", "residual_map", "neighbour_scatter",
+                "variogram"}
     expected |= {f["figure"] for f in summary["lag_pairs"]["figures"]}
     assert set(summary["figures"]) == expected
     assert len(page.images) == len(expected)
@@ -271,6 +272,10 @@ def test_histogram_counts_equal_numpy_and_stem_leaf_counts_add_up(screened):
     counts, _ = np.histogram(values, bins=np.asarray(hist["edges"]))  # reference: numpy.histogram on the same edges
     assert hist["counts"] == counts.tolist()
     assert sum(hist["counts"]) == values.size == summary["distribution"]["all"]["n"]
+    kept = layer.loc[layer["screen_status"] != "suspect", "level_m"].to_numpy(dtype=float)
+    kept = kept[np.isfinite(kept)]
+    second = summary["distribution"]["histogram_without_suspects"]
+    assert second["counts"] == np.histogram(kept, bins=np.asarray(second["edges"]))[0].tolist()
     assert sum(line["count"] for line in summary["distribution"]["stem_leaf"]["lines"]) == values.size
     # the summary without suspects leaves out exactly the suspect rows
     kept = summary["distribution"]["without_suspects"]
@@ -379,7 +384,7 @@ def test_describe_report_without_a_screen_says_what_is_missing(tmp_path):
     source = write_points(build_wells(150, seed=4), tmp_path / "wells.gpkg")
     html_path, json_path = tmp_path / "d.html", tmp_path / "d.json"
     code = main(["describe", str(source), "--value", "level_m", "--id", "well_id", "--report", str(html_path),
-                 "--summary-json", str(json_path)])
+                 "--summary-json", str(json_path), "--bin-width", "5"])
     assert code == 0
     summary = json.loads(json_path.read_text())
     jsonschema.validate(summary, json.loads(SCHEMA_PATH.read_text()), cls=jsonschema.Draft202012Validator)
@@ -390,6 +395,12 @@ def test_describe_report_without_a_screen_says_what_is_missing(tmp_path):
     html = html_path.read_text()
     assert "described, not screened" in html
     assert summary["distribution"]["all"]["n"] == 150
+    # the bin width asked for is the one reported, and the counts are numpy's on those edges
+    hist = summary["distribution"]["histogram"]
+    assert hist["bin_width"] == 5.0 and "given" in hist["title"]
+    values = pyogrio.read_dataframe(source)["level_m"].to_numpy()
+    assert hist["counts"] == np.histogram(values, bins=np.asarray(hist["edges"]))[0].tolist()
+    np.testing.assert_allclose(np.diff(hist["edges"])[:-1], 5.0)
 
 
 def test_describe_report_of_a_screened_layer_uses_its_statuses(screened, tmp_path):

@@ -418,11 +418,12 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         from .report import build_report
 
         if result is not None:
-            report = build_report(result, description=description)
+            report = build_report(result, description=description, bin_width=bin_width)
         else:
             report = build_report(
                 prepared=prepared,
                 description=description,
+                bin_width=bin_width,
                 run_info={
                     "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
                     "input_path": source.path,

@@ -120,6 +120,7 @@ def build_report(
     description=None,
     lag_pairs=None,
     variogram=None,
+    bin_width: float | None = None,
     max_points: int = 50_000,
     max_labels: int = 40,
     seed: int = 0,
@@ -143,6 +144,8 @@ def build_report(
         Results already computed (:class:`~pointsift.methods.lagpairs.LagPairScreen`,
         :class:`~pointsift.methods.variogram.VariogramAnalysis`); computed with
         the defaults when None; ``False`` leaves the section out.
+    bin_width : float, optional
+        Histogram bin width (``describe --bin-width``); Freedman-Diaconis by default.
     max_points : int
         Maps and clouds draw at most about this many points (density shading
         or a stated seeded sample beyond; tables keep every row).
@@ -198,6 +201,7 @@ def build_report(
         lag_pairs=lag_pairs,
         variogram=variogram,
         strips=strips,
+        bin_width=bin_width,
         max_points=max_points,
         max_labels=max_labels,
         seed=seed,

@@ -93,14 +93,32 @@ def _section(summary: dict, key: str, title: str, available: bool, note: str = "
     summary["sections"].append({"id": key, "title": title, "available": bool(available), "note": note})
 
 
-def _histogram_record(fig) -> dict:
-    ax = fig.axes[0]
-    bars = [p for p in ax.patches if hasattr(p, "get_height")]
-    left = np.array([b.get_x() for b in bars], dtype=float)
-    width = np.array([b.get_width() for b in bars], dtype=float)
-    counts = [int(round(b.get_height())) for b in bars]
-    edges = np.append(left, left[-1] + width[-1]).tolist() if bars else []
-    return {"edges": edges, "counts": counts, "title": ax.get_title()}
+def _histogram_record(fig, values, bin_width: float | None = None, max_bins: int = 200) -> dict:
+    """Bin edges and counts of the histogram ``fig`` shows.
+
+    The edges follow :func:`pointsift.methods.summary.plot_histogram` (its
+    rule and its cap of ``max_bins`` bins); reading them back from the bars
+    would lose the last digits, since matplotlib stores bar centres.
+    """
+    from ..methods.summary import histogram_bin_width
+
+    x = np.asarray(values, dtype=float)
+    x = x[np.isfinite(x)]
+    width = histogram_bin_width(x, bin_width)
+    lo, hi = float(x.min()), float(x.max())
+    n_bins = max(1, int(math.ceil((hi - lo) / width)) if hi > lo else 1)
+    if n_bins > max_bins:
+        n_bins = max_bins
+        width = (hi - lo) / n_bins
+    start = lo if hi > lo else lo - width / 2
+    edges = start + width * np.arange(n_bins + 1)
+    edges[-1] = max(edges[-1], hi)
+    counts, _ = np.histogram(x, bins=edges)
+    drawn = [int(round(p.get_height())) for p in fig.axes[0].patches]
+    if drawn != counts.tolist():  # the figure's rule changed: say so rather than report other numbers
+        log.warning("histogram bins of the report differ from the figure's; report the figure's counts")
+        counts = np.asarray(drawn)
+    return {"edges": edges.tolist(), "counts": counts.tolist(), "bin_width": float(width), "title": fig.axes[0].get_title()}
 
 
 def _summary_figures(s) -> dict:
@@ -151,6 +169,7 @@ def collect(
     lag_pairs=None,
     variogram=None,
     strips=None,
+    bin_width: float | None = None,
     max_points: int = 50_000,
     max_labels: int = 40,
     seed: int = 0,
@@ -180,6 +199,9 @@ def collect(
     strips : StripResult, optional
         Strips already computed (the screen's, written to its GeoPackage);
         the description's otherwise.
+    bin_width : float, optional
+        Histogram bin width the description's figure was drawn with
+        (Freedman-Diaconis when None).
     max_points : int
         Maps and clouds draw at most about this many points (seeded sample
         or density shading beyond; stated). Tables keep every row.
@@ -310,7 +332,7 @@ def collect(
     else:
         from ..methods.summary import plot_histogram
 
-        hist_fig = plot_histogram(_usable_values(prepared)[prepared.usable], label=value_column or "value")
+        hist_fig = plot_histogram(_usable_values(prepared)[prepared.usable], bin_width, label=value_column or "value")
     stem = description.stem_leaf
     summary["distribution"] = {
         "all": _summary_figures(s),
@@ -321,7 +343,7 @@ def collect(
             "mean_in_sd": shift.mean_shift_in_sd, "sd_ratio": shift.sd_shift_ratio,
         }) if shift is not None else None,
         "unscreened_reasons": plain(description.unscreened),
-        "histogram": _histogram_record(hist_fig),
+        "histogram": _histogram_record(hist_fig, _usable_values(prepared)[prepared.usable], bin_width),
         "stem_leaf": {
             "text": stem.text(),
             "leaf_unit": plain(stem.leaf_unit),
@@ -336,6 +358,17 @@ def collect(
         "trend": plain(description.trend_info),
     }
     figs["histogram"] = {"uri": fg.figure_data_uri(hist_fig), "alt": "Histogram of the values"}
+    summary["distribution"]["histogram_without_suspects"] = None
+    if shift is not None and shift.n_suspects > 0 and shift.without_suspects.n > 0:
+        # a few wild values squeeze the first histogram; the second shows the bulk
+        from ..methods.summary import plot_histogram
+
+        kept = prepared.usable & ~np.asarray(status == "suspect", dtype=bool) if screened else prepared.usable
+        kept_values = np.asarray(prepared.values, dtype=float)[kept]
+        kept_fig = plot_histogram(kept_values, bin_width, label=value_column or "value")
+        summary["distribution"]["histogram_without_suspects"] = _histogram_record(kept_fig, kept_values, bin_width)
+        figs["histogram_without_suspects"] = {"uri": fg.figure_data_uri(kept_fig),
+                                              "alt": "Histogram of the values without the suspects"}
     _section(summary, "distribution", "Distribution", True)
 
     strips_from_screen = strips is not None

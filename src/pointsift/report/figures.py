@@ -130,6 +130,17 @@ def grid_north_offset(work_crs, x: float, y: float) -> float | None:
         return None
 
 
+def _map_size(xy_km: np.ndarray, width: float, extra: float) -> tuple[float, float]:
+    """Figure size whose height follows the extent of the points (less white space around the map)."""
+    finite = xy_km[np.isfinite(xy_km).all(axis=1)]
+    if finite.shape[0] < 2:
+        return width, width * 0.8
+    span = finite.max(axis=0) - finite.min(axis=0)
+    ratio = float(span[1] / span[0]) if span[0] > 0 else 1.0
+    plot_width = width - extra
+    return width, float(np.clip(plot_width * min(max(ratio, 0.3), 2.0) * 1.08 + 1.3, 4.0, 11.0))
+
+
 def _decorate_map(ax, xy_km: np.ndarray, crs_label: str, north_note: str) -> None:
     from matplotlib.patches import Rectangle
 
@@ -169,7 +180,7 @@ def _decorate_map(ax, xy_km: np.ndarray, crs_label: str, north_note: str) -> Non
 def _north_note(north_offset: float | None) -> str:
     if north_offset is None:
         return "arrow: grid north"
-    return f"arrow: grid north; true north differs by {abs(north_offset):.1f}\N{DEGREE SIGN} here"
+    return f"arrow: grid north; true north differs by {abs(north_offset):.2f}\N{DEGREE SIGN} here"
 
 
 def plot_status_map(
@@ -219,7 +230,7 @@ def plot_status_map(
     score = np.asarray(score, dtype=float)
     km = xy / 1000.0
     located = np.isfinite(km).all(axis=1)
-    fig = _figure(8.6, 7.4)
+    fig = _figure(*_map_size(km, 8.6, 1.0))
     ax = fig.add_subplot()
     record = {"drawn": {}, "shaded": {}, "labelled": 0, "max_points": int(max_points), "unlocated": int((~located).sum())}
     for name in STATUS_ORDER:
@@ -293,7 +304,7 @@ def plot_residual_map(
         rows = np.sort(np.concatenate([flagged, picked]))
         record.update(drawn=int(rows.size), sample_seed=int(seed))
     order = rows[np.argsort(np.abs(z[rows]), kind="stable")]  # strongest drawn last, on top
-    fig = _figure(8.6, 6.8)
+    fig = _figure(*_map_size(km, 9.4, 2.4))
     ax = fig.add_subplot()
     lim = max(float(limit), 1.0)
     size = 6.0 + 10.0 * np.clip(np.abs(z[order]), 0, lim)

@@ -83,6 +83,7 @@ th[aria-sort=descending] button.sort::after { content:"\\25BC"; color:var(--ink)
 .status { display:inline-flex; gap:5px; align-items:center; white-space:nowrap; font-weight:600; }
 svg.marker { vertical-align:middle; flex:none; }
 td.reasons { min-width:26em; font-size:.86rem; }
+td.id { white-space:nowrap; font-weight:600; }
 #quadrant-table th { white-space:nowrap; }
 details { margin:8px 0; }
 details > summary { cursor:pointer; color:var(--accent); }
@@ -379,7 +380,7 @@ def _flagged_section(summary: dict) -> str:
         body.append(
             f'<tr data-status="{r["status"]}" data-row="{r["row"]}">'
             f'<td class="num" data-sort="{rank}">{rank}</td>'
-            f'<td data-sort="{escape(r["id"], quote=True)}">{escape(r["id"])}</td>'
+            f'<td class="id" data-sort="{escape(r["id"], quote=True)}">{escape(r["id"])}</td>'
             f'<td data-sort="{status_rank}">{_status_badge(r["status"])}</td>'
             + _num_cell(r["value"]) + _num_cell(r["expected_value"]) + _num_cell(r["score"])
             + f'<td class="reasons">{escape(r["reasons"])}</td></tr>'
@@ -423,7 +424,12 @@ def _distribution_section(summary: dict, figures: dict) -> str:
                       f"({format_number(shift['mean_in_sd'], 3)} sd) and the standard deviation by {format_number(shift['sd'])} "
                       f"(ratio {format_number(shift['sd_ratio'], 4)}).</p>")
     hist = d["histogram"]
-    caption = (f"Histogram of {value}: {escape(hist.get('title', ''))}. Counts per bin are in the JSON summary.")
+    caption = (f"Histogram of {value}, all values: {escape(hist.get('title', ''))}. Counts per bin are in the JSON summary.")
+    second = ""
+    if d.get("histogram_without_suspects"):
+        second = _figure(figures, "histogram_without_suspects",
+                         f"The same without the {d['n_suspects']:,} suspects: "
+                         f"{escape(d['histogram_without_suspects'].get('title', ''))}.")
     unscreened = d.get("unscreened_reasons") or {}
     un = ""
     if unscreened:
@@ -442,7 +448,7 @@ def _distribution_section(summary: dict, figures: dict) -> str:
         trend_text += ".</p>"
     return (
         '<section id="distribution"><h2>Distribution</h2>'
-        f'<div class="two"><div>{_figure(figures, "histogram", caption)}{shift_text}{trend_text}</div>'
+        f'<div class="two"><div>{_figure(figures, "histogram", caption)}{second}{shift_text}{trend_text}</div>'
         f"<div>{table}</div></div>"
         f'<h3>Stem-and-leaf display</h3><pre class="stem" id="stem-leaf">{escape(d["stem_leaf"]["text"])}</pre>{un}</section>'
     )
