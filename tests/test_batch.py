@@ -618,3 +618,53 @@ def test_progress_bar_on_a_terminal_lines_otherwise_silence_with_quiet(tmp_path)
     assert text[1].startswith("[1/3] skipped-up-to-date net0 (")
     assert text[2].startswith("[2/3] skipped-up-to-date net1 (")
     assert text[3].startswith("[3/3] failed broken: ") and "coordinate columns" in text[3]
+
+
+def _child_pids(pid: int) -> list[int]:
+    found = []
+    for entry in os.listdir("/proc"):
+        if entry.isdigit():
+            try:
+                stat = Path(f"/proc/{entry}/stat").read_text()
+            except OSError:
+                continue
+            if int(stat.rsplit(")", 1)[1].split()[1]) == pid:
+                found.append(int(entry))
+    return found
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="finds worker processes through /proc (Linux)")
+def test_a_worker_killed_mid_run_is_replaced_and_its_unit_redone(tmp_path):
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(8):
+        write_gpkg(data / f"n{seed}.gpkg", {"wells": synthetic_points(1000, seed=seed)})
+    out_dir = tmp_path / "out"
+    process = subprocess.Popen(
+        [sys.executable, "-m", "pointsift.cli", "batch", str(data), "--value", "level_m", "--permutations", "99",
+         "--out-dir", str(out_dir), "--jobs", "2"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    killed = None
+    deadline = time.monotonic() + 120
+    while killed is None and time.monotonic() < deadline and process.poll() is None:
+        time.sleep(0.05)
+        if not list(out_dir.glob("*.batch.json")):
+            continue
+        # workers are grandchildren of the batch process (through the forkserver)
+        workers = [w for child in _child_pids(process.pid) for w in _child_pids(child)]
+        if workers:
+            os.kill(workers[0], signal.SIGKILL)  # as the kernel's out-of-memory killer would
+            killed = workers[0]
+    stdout, stderr = process.communicate(timeout=300)
+    assert killed is not None, "no worker seen"
+    assert process.returncode == 0, stderr
+    index = read_index(out_dir)
+    assert set(index["outcome"]) == {"done"} and len(index) == 8
+    for unit in index.index:
+        assert len(pyogrio.read_dataframe(out_dir / f"{unit}.gpkg", layer="screened")) == 1000

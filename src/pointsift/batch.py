@@ -28,7 +28,6 @@ up to date, 3 some units failed, 2 unusable plan, 130 stopped by Ctrl-C.
 from __future__ import annotations
 
 import concurrent.futures as cf
-import dataclasses
 import difflib
 import glob
 import hashlib
@@ -46,7 +45,7 @@ import time
 import tomllib
 import types
 import typing
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -1642,38 +1641,66 @@ def run_batch(
 
 
 def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
-    """Feed tasks to worker processes, a few at a time so a stop request takes effect quickly."""
+    """Feed tasks to worker processes, a few at a time so a stop request takes effect quickly.
+
+    A worker that dies (a crash in a compiled library, killed for memory)
+    breaks the pool: every unit in flight is tried once more in a new pool,
+    and a unit that breaks a pool twice is recorded as failed.
+    """
+    by_number = dict(tasks)
     pending = list(reversed(tasks))
     running: dict[cf.Future, int] = {}
-    executor = cf.ProcessPoolExecutor(max_workers=min(jobs, len(tasks)), mp_context=_mp_context(),
-                                      initializer=_worker_init)
+    strikes: dict[int, int] = {}
+    executor = None
+
+    def collect(future) -> bool:
+        """Record a finished future; False when its pool broke."""
+        number = running.pop(future)
+        try:
+            outcomes[number] = future.result()
+        except cf.process.BrokenProcessPool as exc:
+            strikes[number] = strikes.get(number, 0) + 1
+            if strikes[number] < 2:
+                pending.append((number, by_number[number]))
+                return False
+            task = by_number[number]
+            outcomes[number] = UnitOutcome(
+                unit=task.unit, outcome=FAILED,
+                message=f"the worker process stopped unexpectedly while screening this input, twice ({exc}).",
+                input_sha256=task.input_sha256, fingerprint=task.fingerprint,
+            )
+            progress.advance(outcomes[number])
+            return False
+        progress.advance(outcomes[number])
+        return True
+
     try:
         while pending or running:
+            if executor is None:
+                executor = cf.ProcessPoolExecutor(max_workers=min(jobs, len(pending) or 1),
+                                                  mp_context=_mp_context(), initializer=_worker_init)
             while pending and not stop.requested and len(running) < 2 * jobs:
                 number, task = pending.pop()
                 running[executor.submit(_screen_unit, task)] = number
             if not running:
                 break
             done, _ = cf.wait(running, return_when=cf.FIRST_COMPLETED)
-            for future in done:
-                number = running.pop(future)
-                try:
-                    outcomes[number] = future.result()
-                except Exception as exc:  # the worker process itself died
-                    task = dict(tasks)[number]
-                    outcomes[number] = UnitOutcome(
-                        unit=task.unit, outcome=FAILED,
-                        message=f"the worker process stopped unexpectedly while screening this input ({exc!r}).",
-                        input_sha256=task.input_sha256, fingerprint=task.fingerprint,
-                    )
-                progress.advance(outcomes[number])
-        executor.shutdown(wait=True)
+            healthy = [collect(future) for future in done]
+            if not all(healthy):
+                # the rest of the broken pool fails the same way: collect them, then start afresh
+                for future in cf.as_completed(list(running)):
+                    collect(future)
+                executor.shutdown(wait=True)
+                executor = None
+        if executor is not None:
+            executor.shutdown(wait=True)
     except BaseException:
         # Abandon: stop the workers now; the caller removes the staging folder,
         # so nothing they were writing survives.
-        for process in list(getattr(executor, "_processes", {}).values()):
-            process.terminate()
-        executor.shutdown(wait=False, cancel_futures=True)
+        if executor is not None:
+            for process in list((getattr(executor, "_processes", None) or {}).values()):
+                process.terminate()
+            executor.shutdown(wait=False, cancel_futures=True)
         raise
 
 
