@@ -267,7 +267,7 @@ def robust_plane_predict(
     # own curvature (a cone, a valley floor) predict the point?
     quad = np.concatenate([plane, np.stack([dx * dx, dx * dy, dy * dy], axis=2)], axis=2)
     enough = ok & ((w > 0).sum(axis=1) >= 8)
-    qcoef, qleverage = _batched_wls(quad, v, w, enough, ridge_from=3)
+    qcoef, qleverage = _batched_wls(quad, v, w, enough, ridge_from=1)
     quadratic = np.where(enough, qcoef[:, 0], np.nan)
     curvature = np.where(enough, qcoef[:, 3] + qcoef[:, 5], np.nan)
     qleverage = np.where(enough, qleverage, np.nan)
