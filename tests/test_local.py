@@ -220,3 +220,18 @@ def test_too_few_neighbours_and_nan_values_are_not_predicted():
     assert np.isnan(r.z[had_nan]).all() and np.isnan(r.expected[had_nan]).all()
     assert (r.neighbour_count[had_nan] == 0).all()
     assert np.isfinite(r.z[~had_nan & np.isfinite(values)]).all()
+
+
+@pytest.mark.parametrize("direction", [(1.0, 0.0), (0.6, 0.8)])
+def test_wells_strung_along_a_line_are_screened(direction):
+    # wells along a road or a transect: the slope (and curvature) across the line
+    # has no information; the fit must stay solvable and still find a spike
+    rng = np.random.default_rng(9)
+    t = np.sort(rng.uniform(0, 8000, 120))
+    xy = np.column_stack([t * direction[0], t * direction[1]]) + [500_000.0, 5_300_000.0]
+    values = 100 + 0.002 * t + rng.normal(0, 0.05, 120)
+    values[60] += 3.0
+    r = local_residuals(xy, values, build_graph(xy, k=10))
+    assert np.isfinite(r.z[10:110]).all()
+    assert r.z[60] > 10
+    assert np.mean(np.abs(np.delete(r.z, 60)) > 3.5) < 0.03
