@@ -213,7 +213,9 @@ def _read_csv(path: Path) -> pd.DataFrame:
     try:
         # keep every column as text first would lose types; let pandas infer,
         # but never let a bad value crash reading (value parsing is prepare's job)
-        return pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True)
+        # utf-8-sig: spreadsheet "CSV UTF-8" exports start with a byte-order mark,
+        # which would otherwise stick to the first column's name
+        return pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True, encoding="utf-8-sig")
     except UnicodeDecodeError:
         return pd.read_csv(path, sep=sep, engine="python", encoding="latin-1", skipinitialspace=True)
     except Exception as exc:
