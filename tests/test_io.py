@@ -85,6 +85,20 @@ def test_csv_coordinate_columns_are_detected(tmp_path, names):
     assert fingerprint(path) == before
 
 
+@pytest.mark.parametrize("encoding", ["utf-8-sig", "latin-1"])
+def test_csv_from_a_spreadsheet_export(tmp_path, encoding):
+    # "CSV UTF-8" exports start with a byte-order mark (common practice of spreadsheet
+    # programs); older exports are Latin-1. The first column is the coordinate here.
+    path = tmp_path / "export.csv"
+    path.write_bytes("lon,lat,well_id,level\n15.1,47.8,Wé1,12.5\n15.2,47.9,W2,13.0\n".encode(encoding))
+    before = fingerprint(path)
+    gdf, source = psio.read_points(path, crs="EPSG:4326")
+    assert source.coordinate_columns == ("lon", "lat")
+    assert list(gdf.columns[:-1]) == ["lon", "lat", "well_id", "level"]
+    assert gdf["well_id"].tolist() == ["Wé1", "W2"]
+    assert fingerprint(path) == before
+
+
 def test_csv_explicit_columns_and_errors(tmp_path):
     wells = build_wells(10, seed=6)
     path = write_points(wells, tmp_path / "odd.csv", xy_names=("e_utm", "n_utm"))
