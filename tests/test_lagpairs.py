@@ -370,6 +370,9 @@ def test_dominance_equals_a_set_count():
         around = [e for e in flagged_pairs if e[0] in near or e[1] in near]
         own = [e for e in flagged_pairs if p in e]
         got = screen.points.loc[p, "lagpair_dominance"]
+        own_z = np.abs(screen.pair_z[screened & ((screen.pairs.tail == p) | (screen.pairs.head == p))])
+        if own_z.size:
+            assert screen.points.loc[p, "lagpair_max_z"] == pytest.approx(np.nanmax(own_z))
         if around:
             assert got == pytest.approx(len(own) / len(around))
         else:

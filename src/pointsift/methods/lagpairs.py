@@ -775,11 +775,7 @@ def screen_lag_pairs(
     culprit = np.full(pairs.size, -1, dtype=np.int64)
     culprit[np.flatnonzero(flagged)] = np.where((winner >= 0) & is_culprit[np.maximum(winner, 0)], winner, -1)
 
-    point_max_z = np.full(n, -np.inf)
-    sz = max_abs_z[screened_pair]
-    np.maximum.at(point_max_z, tail_s, sz)
-    np.maximum.at(point_max_z, head_s, sz)
-    point_max_z[~np.isfinite(point_max_z)] = np.nan
+    point_max_z = _max_per_point(n, np.concatenate([tail_s, head_s]), np.tile(max_abs_z[screened_pair], 2))
 
     points = pd.DataFrame({
         "lagpair_pairs": n_pairs.astype(np.int64),
@@ -816,6 +812,18 @@ def screen_lag_pairs(
     )
 
 
+def _max_per_point(n: int, index: np.ndarray, value: np.ndarray) -> np.ndarray:
+    """Largest value per point (NaN where a point has none), by sorting rather than ufunc.at."""
+    out = np.full(n, np.nan)
+    if index.size == 0:
+        return out
+    order = np.argsort(index, kind="stable")
+    index, value = index[order], value[order]
+    starts = np.flatnonzero(np.r_[True, index[1:] != index[:-1]])
+    out[index[starts]] = np.maximum.reduceat(value, starts)
+    return out
+
+
 def _lexi_greater(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Row-wise lexicographic ``a > b`` for two (m, k) arrays."""
     greater = np.zeros(a.shape[0], dtype=bool)
@@ -849,10 +857,14 @@ def _dominance(n, tail_s, head_s, tail_f, head_f, n_flagged) -> np.ndarray:
     adj = adjacency(tail_s, head_s)
     flag = adjacency(tail_f, head_f)
     around_with_double = adj @ n_flagged.astype(float)
-    between = np.asarray((adj @ flag).multiply(adj).sum(axis=1)).ravel() / 2.0
-    around = around_with_double - between
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(around > 0, n_flagged / np.maximum(around, 1e-300), np.nan)
+    # Only points in a flagged pair need the exact count; for the others the
+    # dominance is 0 when any flagged pair is around (A f > 0), else undefined.
+    rows = np.flatnonzero(n_flagged > 0)
+    sub = adj[rows]
+    between = np.asarray((sub @ flag).multiply(sub).sum(axis=1)).ravel() / 2.0
+    out = np.where(around_with_double > 0, 0.0, np.nan)
+    out[rows] = n_flagged[rows] / (around_with_double[rows] - between)
+    return out
 
 
 def lag_pair_reasons(screen: LagPairScreen) -> np.ndarray:
