@@ -93,7 +93,7 @@ ESTIMATORS: tuple[str, ...] = ("matheron", "cressie_hawkins")
 #: Variogram models that can be fitted.
 MODELS: tuple[str, ...] = ("spherical", "exponential", "gaussian")
 #: Pairs kept for a variogram before seeded subsampling starts.
-DEFAULT_VARIOGRAM_PAIR_BUDGET = 2_000_000
+DEFAULT_VARIOGRAM_PAIR_BUDGET = 500_000
 #: A lag class needs this many pairs to count towards a trustworthy fit
 #: (Journel, A. G. and Huijbregts, C. J. (1978), *Mining Geostatistics*:
 #: at least 30 to 50 pairs per lag; from memory).
