@@ -140,6 +140,54 @@ def _with_units(fig, value_label: str):
     return fig
 
 
+@dataclass
+class _LightDescription:
+    """The parts of :class:`pointsift.explore.Description` a screen's report needs."""
+
+    summary: object
+    shift: object
+    unscreened: dict
+    stem_leaf: object
+    strips: object
+    trend_info: dict
+    trend: object = None
+    figures: dict = field(default_factory=dict)
+
+
+def _light_description(prepared, suspect_mask, trend_info: dict) -> _LightDescription:
+    from ..methods.stemleaf import stem_and_leaf_table
+    from ..methods.summary import global_summary, summary_shift
+
+    usable = prepared.usable
+    values = _usable_values(prepared)
+    mask = np.asarray(suspect_mask, dtype=bool)
+    return _LightDescription(
+        summary=global_summary(values[usable]),
+        shift=summary_shift(values[usable], mask[usable]),
+        unscreened=dict(Counter(str(r) for r in prepared.unscreened_reason[~usable]).most_common()),
+        stem_leaf=stem_and_leaf_table(values[usable]),
+        strips=_LazyStrips(prepared, values),
+        trend_info=dict(trend_info),
+    )
+
+
+class _LazyStrips:
+    """Strips with the default settings, computed only when the screen did not bring its own."""
+
+    def __init__(self, prepared, values):
+        self._args = (prepared.xy[:, 0], prepared.xy[:, 1], values)
+        self._result = None
+
+    def __getattr__(self, name):
+        if name.startswith("_"):
+            raise AttributeError(name)
+        if self._result is None:
+            from ..methods.strips import strip_summary
+
+            self._result = strip_summary(*self._args)
+        return getattr(self._result, name)
+
+
 def _usable_values(prepared):
     return np.where(prepared.usable, prepared.values, np.nan)
 
@@ -277,10 +325,12 @@ def collect(
     t = time.perf_counter()
     map_status = status if screened else np.where(prepared.usable, "ok", "unscreened").astype(object)
     map_score = score if screened else np.full(n, np.nan)
-    fig, drawn = fg.plot_status_map(xy, map_status, ids, map_score, crs_label=crs_label, north_offset=north,
-                                    max_points=max_points, max_labels=max_labels)
-    if not screened:
-        fig.axes[0].set_title("Points (not screened: blue = has a location and a value)", fontsize=11)
+    fig, drawn = fg.plot_status_map(
+        xy, map_status, ids, map_score, crs_label=crs_label, north_offset=north, max_points=max_points,
+        max_labels=max_labels,
+        words=None if screened else {"ok": "has a value", "unscreened": "no usable value"},
+        title="Points by screening status" if screened else "Points (described, not screened)",
+    )
     figs["status_map"] = {"uri": fg.figure_data_uri(fig), "alt": "Map of the points coloured and shaped by status"}
     summary["map"] = {"screened": screened, **drawn}
     _section(summary, "map", "Map", True)
@@ -317,12 +367,17 @@ def collect(
 
     # ------------------------------------------------------------------ distribution and strips
     t = time.perf_counter()
-    if description is None:
+    if description is None and result is not None:
+        # a screen has its trend, strips, lag pairs and variogram already: only the cheap summaries are left
+        description = _light_description(prepared, status == "suspect", run_info.get("trend", {"method": "none"}))
+    elif description is None:
         from ..explore import describe
 
         mask = (status == "suspect") if screened else None
         description = describe(prepared, suspect_mask=mask, trend=run_info.get("parameters", {}).get("detrend", "auto"),
                                figures=False, value_label=value_column or "value")
+    if variogram is None and getattr(description, "variogram", None) is not None:
+        variogram = description.variogram  # describe computed it on the trend residuals already
     timings["describe_s"] = time.perf_counter() - t
     t = time.perf_counter()
     s = description.summary

@@ -193,6 +193,8 @@ def plot_status_map(
     north_offset: float | None = None,
     max_points: int = 50_000,
     max_labels: int = 40,
+    words: dict | None = None,
+    title: str = "Points by screening status",
 ):
     """Map of the points coloured and shaped by status, suspects labelled by id.
 
@@ -216,6 +218,11 @@ def plot_status_map(
         points are always drawn one by one.
     max_labels : int
         Most suspects labelled (strongest first).
+    words : dict, optional
+        Legend words replacing the status words (e.g. for a layer that was
+        not screened).
+    title : str
+        Figure title.
 
     Returns
     -------
@@ -239,7 +246,7 @@ def plot_status_map(
         record["drawn"][name] = 0
         if rows.size == 0:
             continue
-        count_label = f"{style['word']} ({rows.size:,})"
+        count_label = f"{(words or {}).get(name, style['word'])} ({rows.size:,})"
         if name in ("ok", "unscreened") and rows.size > max_points:
             cmap = "Greys" if name == "ok" else "Purples"
             ax.hexbin(km[rows, 0], km[rows, 1], gridsize=120, mincnt=1, cmap=cmap, bins="log", linewidths=0, zorder=2)
@@ -262,8 +269,8 @@ def plot_status_map(
         record["labelled"] = int(order.size)
     _decorate_map(ax, km, crs_label, _north_note(north_offset))
     if ax.get_legend_handles_labels()[0]:
-        ax.legend(loc="upper left", fontsize=8, framealpha=0.92, title="status", title_fontsize=8)
-    ax.set_title("Points by screening status", fontsize=11)
+        ax.legend(loc="upper left", fontsize=8, framealpha=0.92, title=None if words else "status", title_fontsize=8)
+    ax.set_title(title, fontsize=11)
     return fig, record
 
 

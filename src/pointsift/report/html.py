@@ -330,6 +330,9 @@ def _map_section(summary: dict, figures: dict) -> str:
     parts = []
     drawn = m.get("drawn", {})
     shaded = m.get("shaded", {})
+    if not m.get("screened"):
+        parts.append("The layer was described, not screened: points with a usable value are dots, "
+                     "points without one crosses.")
     if m.get("screened"):
         parts.append("Suspects are diamonds, review points triangles, ok points small dots and unscreened points crosses; "
                      "colours from the Okabe-Ito colour-blind-safe set.")
