@@ -269,6 +269,17 @@ def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) ->
     return out_path
 
 
+def _free_name(base: str, columns) -> str:
+    """``base``, or ``base_1``, ``base_2``... : a name no column has (case-insensitively,
+    as SQLite compares names)."""
+    taken = {str(c).lower() for c in columns}
+    name, number = base, 0
+    while name.lower() in taken:
+        number += 1
+        name = f"{base}_{number}"
+    return name
+
+
 def write_geopackage(
     out_path: str | os.PathLike,
     layers: dict[str, pd.DataFrame],
@@ -304,10 +315,20 @@ def write_geopackage(
     try:
         for name, frame in layers.items():
             if isinstance(frame, gpd.GeoDataFrame):
-                pyogrio.write_dataframe(frame, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary), promote_to_multi=False)
+                attributes = [c for c in frame.columns if c != frame.geometry.name]
+                # the GeoPackage's own key and geometry columns must not take an input
+                # column's name: GDAL would swallow a "FID" column as the feature id
+                options = {"FID": _free_name("fid", attributes), "GEOMETRY_NAME": _free_name("geom", attributes)}
+                pyogrio.write_dataframe(
+                    frame, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary),
+                    promote_to_multi=False, layer_options=options,
+                )
             else:
                 table = pd.DataFrame(frame).reset_index(drop=True)
-                pyogrio.write_dataframe(table, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary))
+                pyogrio.write_dataframe(
+                    table, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary),
+                    layer_options={"FID": _free_name("fid", table.columns)},
+                )
         os.replace(temporary, out_path)
     except BaseException:
         for leftover in (temporary, temporary + "-journal", temporary + "-wal", temporary + "-shm"):
