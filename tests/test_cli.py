@@ -152,6 +152,23 @@ def test_column_types_and_values_survive_exactly(tmp_path, capfd):
     assert types_out[: len(types_in)] == types_in  # fid, geom, then every input column with its SQL type
 
 
+@pytest.mark.parametrize(
+    "column, values",
+    [("FID", lambda n: np.arange(n)[::-1]), ("fid", lambda n: [f"F{i % 4}" for i in range(n)]), ("fid", lambda n: np.full(n, 7)), ("geom", lambda n: ["x"] * n)],
+    ids=["FID-integers", "fid-text", "fid-repeated", "geom-text"],
+)
+def test_input_columns_named_like_geopackage_internals_are_kept(tmp_path, capfd, column, values):
+    # exported tables often carry a 'fid' or 'FID' column; the GeoPackage's own key
+    # and geometry columns must not take it over
+    wells = build_wells(80, seed=38)
+    wells[column] = values(80)
+    source = write_points(wells, tmp_path / "export.csv")
+    out = tmp_path / "out.gpkg"
+    code, text = run(["screen", source, "--value", "level_m", "--crs", "EPSG:32633", "--out", out, *FAST], capfd)
+    assert code == 0, text
+    check_written(out, source, expect_crs="EPSG:32633")  # every input column, values and order
+
+
 @pytest.mark.xfail(
     strict=True,
     reason="the output renumbers GeoPackage feature ids 1..n: after deletions in the input (fids 1, 2, 5, ...) "
