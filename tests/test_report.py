@@ -258,10 +258,19 @@ def test_quadrant_and_strip_numbers_equal_the_geopackage(screened):
         for got, row in zip(summary["strips"]["rows"], strips.itertuples()):
             assert (got["n"], got["flagged"]) == (row.n, bool(row.flagged))
             assert got["u"] == (None if math.isnan(row.u) else row.u)
-    if "variogram" in tables and not summary["variogram"].get("computed_for_report", True):
+    # lag pairs and variogram taken from the screen must be the ones its GeoPackage holds
+    if not summary["variogram"]["computed_for_report"]:
         table = pyogrio.read_dataframe(screened["gpkg"], layer="variogram", read_geometry=False)
         assert len(table) == len(summary["variogram"]["table"])
         np.testing.assert_array_equal(table["pairs"].to_numpy(), [r["pairs"] for r in summary["variogram"]["table"]])
+        got = np.array([np.nan if r["gamma"] is None else r["gamma"] for r in summary["variogram"]["table"]])
+        np.testing.assert_array_equal(table["gamma"].to_numpy(dtype=float), got)
+    if not summary["lag_pairs"]["computed_for_report"]:
+        pairs = pyogrio.read_dataframe(screened["gpkg"], layer="lag_pairs")
+        assert len(pairs) == summary["lag_pairs"]["pairs_flagged"] == len(summary["lag_pairs"]["flagged_pairs"])
+        assert pairs["tail_id"].tolist() == [p["tail_id"] for p in summary["lag_pairs"]["flagged_pairs"]]
+        assert pairs["pair_z"].tolist() == [p["pair_z"] for p in summary["lag_pairs"]["flagged_pairs"]]
+    assert "lag_pairs" in tables or summary["lag_pairs"]["computed_for_report"]
 
 
 def test_histogram_counts_equal_numpy_and_stem_leaf_counts_add_up(screened):
