@@ -188,6 +188,23 @@ def test_feature_ids_are_kept(tmp_path, capfd):
     assert ids_out == ids_in
 
 
+@pytest.mark.parametrize("options, kind", [(["--within", "600m"], "band"), (["--neighbours", "6", "--min-neighbours", "3"], "knn")])
+def test_graph_options_reach_the_run(tmp_path, capfd, wells_gpkg, options, kind):
+    out = tmp_path / "out.gpkg"
+    code, text = run(["screen", wells_gpkg, "--value", "level_m", "--out", out, *FAST, *options], capfd)
+    assert code == 0, text
+    with sqlite3.connect(out) as db:
+        info = dict(db.execute("SELECT key, value FROM run_info").fetchall())
+    graph = json.loads(info["graph"])
+    assert graph["kind"] == kind
+    layer = pyogrio.read_dataframe(out, layer="screened")
+    if kind == "band":
+        assert graph["within_m"] == 600.0 and graph["max_distance_m"] <= 600.0
+    else:
+        assert graph["k"] == 6 and layer["neighbour_count"].max() <= 6
+        assert json.loads(info["parameters"])["min_neighbours"] == 3
+
+
 # --- exit codes ------------------------------------------------------------------------
 
 
