@@ -412,3 +412,16 @@ def test_empirical_distance_scale_recovers_a_growing_spread():
     inner = (h > 10) & (h < 90)
     np.testing.assert_allclose(got[inner], 0.5 + 0.05 * h[inner], rtol=0.12)
     assert np.all(np.diff(got[np.argsort(h)]) >= 0)
+
+
+def test_pairs_in_reach_of_a_large_set_is_exact_when_within_budget():
+    # above 20,000 points the count is first estimated from a sample; far below the
+    # budget the search itself counts the pairs (reference: scipy's count_neighbors)
+    from scipy.spatial import cKDTree
+
+    rng = np.random.default_rng(17)
+    xy = rng.uniform(0, 10_000, (25_000, 2))
+    got = find_pairs(xy, 40.0)
+    tree = cKDTree(xy)
+    assert got.pairs_in_reach == (tree.count_neighbors(tree, 40.0) - 25_000) // 2 == got.size
+    assert not got.record["pairs_in_reach_estimated"] and not got.sampled
