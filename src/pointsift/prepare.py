@@ -130,8 +130,13 @@ def parse_values(column: pd.Series, sentinels: tuple[float, ...]) -> tuple[np.nd
     reasons[missing] = "no value (blank)"
     infinite = np.isinf(values)
     reasons[infinite] = "value is not finite"
+    # a float32 column (GeoPackage FLOAT) holds -99.99 as -99.98999786: compare the
+    # codes at the column's own precision too
+    stored = np.dtype(getattr(column.dtype, "numpy_dtype", column.dtype)) if pd.api.types.is_float_dtype(column.dtype) else None
     for code in sentinels:
         hit = values == code
+        if stored is not None and stored.itemsize < 8:
+            hit |= values == float(np.array(code, dtype=stored))
         reasons[hit] = f"no-data code {_format_number(code)}"
     values = np.where(reasons == "", values, np.nan)
     return values, reasons
