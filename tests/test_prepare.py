@@ -69,6 +69,16 @@ def test_parse_values_numeric_column_and_custom_sentinels():
     np.testing.assert_array_equal(values, [1.0, np.nan, 0.0, np.nan, np.nan])
 
 
+@pytest.mark.parametrize("dtype", ["float32", "Float32", "float64"])
+def test_custom_codes_match_at_the_column_precision(dtype):
+    # a GeoPackage FLOAT column is float32: -99.99 is stored as -99.98999786 (numpy float32)
+    column = pd.Series([12.25, -99.99, -9999.0, 13.5], name="v").astype(dtype)
+    assert dtype == "float64" or float(column.iloc[1]) != -99.99
+    values, reasons = parse_values(column, (-99.99, -9999.0))
+    assert list(reasons) == ["", "no-data code -99.99", "no-data code -9999", ""]
+    np.testing.assert_array_equal(values, [12.25, np.nan, np.nan, 13.5])
+
+
 def test_boolean_value_column_is_refused():
     with pytest.raises(InputError, match=r"Value column 'flag' holds true/false values.*Choose a numeric column"):
         parse_values(pd.Series([True, False], name="flag"), ())
