@@ -248,9 +248,14 @@ def plot_status_map(
             continue
         count_label = f"{(words or {}).get(name, style['word'])} ({rows.size:,})"
         if name in ("ok", "unscreened") and rows.size > max_points:
-            cmap = "Greys" if name == "ok" else "Purples"
-            ax.hexbin(km[rows, 0], km[rows, 1], gridsize=120, mincnt=1, cmap=cmap, bins="log", linewidths=0, zorder=2)
-            ax.scatter([], [], marker="h", c="#9a9a9a", s=40, label=f"{count_label}, shown as density")
+            from matplotlib.colors import LinearSegmentedColormap
+
+            # light shades of the status colour, so the flagged markers stay on top visually
+            light = LinearSegmentedColormap.from_list(name, ["#f2f6fa", style["colour"]])
+            cells = int(np.clip(np.sqrt(rows.size / 12.0), 30, 90))
+            ax.hexbin(km[rows, 0], km[rows, 1], gridsize=cells, mincnt=1, cmap=light, linewidths=0, alpha=0.55,
+                      zorder=2)
+            ax.scatter([], [], marker="h", c=style["colour"], alpha=0.45, s=60, label=f"{count_label}, shown as density")
             record["shaded"][name] = int(rows.size)
             continue
         edge = style["edge"]
@@ -269,8 +274,9 @@ def plot_status_map(
         record["labelled"] = int(order.size)
     _decorate_map(ax, km, crs_label, _north_note(north_offset))
     if ax.get_legend_handles_labels()[0]:
-        ax.legend(loc="upper left", fontsize=8, framealpha=0.92, title=None if words else "status", title_fontsize=8)
-    ax.set_title(title, fontsize=11)
+        ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.005), ncols=4, fontsize=8, frameon=False, borderaxespad=0.2,
+                  handletextpad=0.3, columnspacing=1.2)
+    fig.suptitle(title, fontsize=11)
     return fig, record
 
 
