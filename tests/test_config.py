@@ -73,6 +73,8 @@ def test_defaults_are_the_documented_ones():
         ({"fdr": 1.0}, r"fdr must be between 0 and 1, got 1\.0"),
         ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(4\.0\)"),
         ({"coincident_tolerance": -1.0}, r"coincident_tolerance must be zero or positive, got -1\.0"),
+        ({"lag_count": 0}, r"lag_count must be a whole number from 1 to 1000, got 0"),
+        ({"lag_width": -5.0}, r"lag_width must be positive, got -5\.0"),
         ({"max_distance": 0.0}, r"max_distance must be positive, got 0\.0"),
         ({"coincident_value_tolerance": -2.0}, r"coincident_value_tolerance must be positive, got -2\.0"),
     ],

@@ -187,3 +187,24 @@ def test_a_screened_layer_is_summarised_without_its_suspects(tmp_path):
     # Reference: pandas on the screened layer's values without its suspect rows.
     assert table.loc["n", "all"] - table.loc["n", "without_suspects"] == suspect.sum()
     assert table.loc["mean", "without_suspects"] == pytest.approx(layer.loc[~suspect, "level_m"].mean(), rel=1e-12)
+
+
+def test_describe_writes_the_variogram_of_the_lag_classes_asked_for(meuse_gpkg, tmp_path):
+    # --lag-count / --lag-width: 15 classes of 106.4415 m on meuse hold the pair counts that
+    # the gstat R package prints in tests/variogram.Rout.save (57 ... 415); the counts do not
+    # depend on the values, so raw zinc without a trend is enough here.
+    import json
+
+    out = tmp_path / "variogram.gpkg"
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--detrend", "none",
+                                      "--lag-count", "15", "--lag-width", "106.4415", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    table = pyogrio.read_dataframe(out, layer="variogram")
+    omni = table[(table["direction"] == "all") & (table["estimator"] == "matheron")]
+    assert omni["pairs"].tolist() == [57, 299, 419, 457, 547, 533, 574, 564, 589, 543, 500, 477, 452, 457, 415]
+    assert omni["lag_high"].iloc[-1] == pytest.approx(15 * 106.4415)
+    info = pyogrio.read_dataframe(out, layer="run_info").set_index("key")["value"]
+    variogram = json.loads(info["variogram"])
+    assert variogram["values"] == "values" and variogram["model"]["estimator"] == "cressie_hawkins"
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--lag-width", "-5"])
+    assert result.exit_code == 2

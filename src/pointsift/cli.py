@@ -94,6 +94,8 @@ def screen_options(func):
             default=None,
             help="Regional trend removed before the cluster statistics (default auto).",
         ),
+        click.option("--lag-count", type=click.IntRange(1, 1000), default=None, help="Number of variogram lag classes (default: from the extent and spacing)."),
+        click.option("--lag-width", type=LENGTH, default=None, help="Width of the variogram lag classes (0, W], (W, 2W], ..., e.g. 500m (default: from the extent and spacing)."),
     ]
     for option in reversed(options):
         func = option(func)
@@ -118,6 +120,8 @@ _OPTION_TO_CONFIG = {
     "suspect_z": "suspect_z",
     "review_z": "review_z",
     "detrend": "detrend",
+    "lag_count": "lag_count",
+    "lag_width": "lag_width",
 }
 
 
@@ -370,6 +374,8 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         strip_width=strip_width,
         min_strip_n=min_strip_points,
         trend=config.detrend,
+        lag_count=config.lag_count,
+        lag_width=config.lag_width,
         stem_unit=stem_unit,
         split=int(stem_split) if stem_split else None,
         suspect_mask=suspects,

@@ -109,6 +109,10 @@ class ScreenConfig:
     detrend : {"none", "auto", "surface1", "surface2", "polish"}
         Regional trend removed before the cluster statistics (and, unless
         ``"none"``, reported).
+    lag_count, lag_width : int, float or None
+        Variogram lag classes ``(0, W], (W, 2W], ...``: their number and width
+        in metres. None derives them from the extent and spacing
+        (:func:`pointsift.methods.variogram.lag_edges`).
     """
 
     value: str
@@ -129,6 +133,8 @@ class ScreenConfig:
     suspect_z: float = 4.0
     review_z: float = 3.0
     detrend: str = "auto"
+    lag_count: int | None = None
+    lag_width: float | None = None
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -156,7 +162,11 @@ class ScreenConfig:
             )
         if self.coincident_tolerance < 0:
             raise ConfigError(f"coincident_tolerance must be zero or positive, got {self.coincident_tolerance!r}.")
-        for name in ("within", "max_distance", "coincident_value_tolerance"):
+        if self.lag_count is not None and not (
+            isinstance(self.lag_count, int) and not isinstance(self.lag_count, bool) and 1 <= self.lag_count <= 1000
+        ):
+            raise ConfigError(f"lag_count must be a whole number from 1 to 1000, got {self.lag_count!r}.")
+        for name in ("within", "max_distance", "coincident_value_tolerance", "lag_width"):
             value = getattr(self, name)
             if value is not None and not value > 0:
                 raise ConfigError(f"{name} must be positive, got {value!r}.")

@@ -131,6 +131,8 @@ def describe(
     figures: bool = False,
     bin_width: float | None = None,
     value_label: str = "value",
+    lag_count: int | None = None,
+    lag_width: float | None = None,
 ) -> Description:
     """Describe a prepared layer: summary, stem-and-leaf, strips and trend.
 
@@ -156,6 +158,8 @@ def describe(
         Histogram bin width (Freedman-Diaconis when omitted).
     value_label : str
         Axis label of the figures.
+    lag_count, lag_width : optional
+        Variogram lag classes (see :func:`pointsift.methods.variogram.lag_edges`).
 
     Returns
     -------
@@ -190,7 +194,7 @@ def describe(
         prepared.xy[:, 0], prepared.xy[:, 1], values, directions, strip_width, min_n=min_strip_n
     )
     fit, trend_info = _fit_trend(prepared, trend)
-    variogram, variogram_basis = _variogram(prepared, values, fit, trend_info)
+    variogram, variogram_basis = _variogram(prepared, values, fit, trend_info, lag_count, lag_width)
     drawn = {}
     if figures:
         from .methods.strips import plot_strip_profiles
@@ -219,7 +223,7 @@ def describe(
     )
 
 
-def _variogram(prepared: Prepared, values: np.ndarray, fit, trend_info: dict):
+def _variogram(prepared: Prepared, values: np.ndarray, fit, trend_info: dict, lag_count=None, lag_width=None):
     """Variograms of the values, or of the trend residuals when a trend was fitted (as the screen does)."""
     from .methods.variogram import analyse_variogram
 
@@ -228,7 +232,7 @@ def _variogram(prepared: Prepared, values: np.ndarray, fit, trend_info: dict):
         values = np.where(prepared.usable, fit.residual, np.nan)
         basis = f"residuals from the trend ({trend_info.get('method', '')})"
     try:
-        return analyse_variogram(prepared.xy, values), basis
+        return analyse_variogram(prepared.xy, values, lag_count=lag_count, lag_width=lag_width), basis
     except InputError as exc:
         log.info("no variogram: %s", exc)
         return None, basis
