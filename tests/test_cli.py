@@ -253,6 +253,12 @@ def _swapped_csv(tmp_path):
     return write_points(lonlat, tmp_path / "swapped.csv", xy_names=("lat", "lon"))
 
 
+def _shapefile_without_prj(tmp_path):
+    path = write_points(build_wells(30, seed=6), tmp_path / "noprj.shp")
+    (tmp_path / "noprj.prj").unlink()
+    return path
+
+
 def _collision(tmp_path):
     wells = build_wells(30, seed=5)
     wells["SCREEN_STATUS"] = "checked"  # SQLite names are case-insensitive: a collision too
@@ -267,12 +273,13 @@ def _collision(tmp_path):
         (lambda p: write_points(build_wells(30), p / "w.gpkg"), ["--value", "level"], r"has no column 'level'\. Numeric columns present: level_m, depth_m"),
         (_non_points, [], r"not points \(3 LineString, 1 Polygon\)"),
         (lambda p: write_points(build_wells(30), p / "w.csv"), [], r"has no CRS.*Pass --crs EPSG:XXXX"),
+        (_shapefile_without_prj, [], r"has no CRS.*Pass --crs EPSG:XXXX"),
         (lambda p: write_points(build_wells(30), p / "w.gpkg"), ["--crs", "EPSG:4326"], r"declares EPSG:32633 but --crs says EPSG:4326"),
         (_swapped_csv, ["--crs", "EPSG:4326"], r"40 of 40 points .* \(first: W0000, W0001, W0002, W0003, W0004\)\. Longitude and latitude look swapped"),
         (_collision, [], r"already has column\(s\) SCREEN_STATUS"),
         (lambda p: write_points(build_wells(30, crs=None), p / "w.csv", xy_names=("e", "n")), [], r"no recognisable coordinate columns.*--x COLUMN --y COLUMN"),
     ],
-    ids=["several-layers", "unknown-layer", "missing-value-column", "non-point", "no-crs", "crs-contradicts", "swapped", "column-collision", "no-coordinates"],
+    ids=["several-layers", "unknown-layer", "missing-value-column", "non-point", "no-crs", "no-prj", "crs-contradicts", "swapped", "column-collision", "no-coordinates"],
 )
 def test_data_errors_exit_1_with_message_and_input_untouched(tmp_path, capfd, make, options, message):
     source = make(tmp_path)

@@ -99,6 +99,20 @@ def test_csv_from_a_spreadsheet_export(tmp_path, encoding):
     assert fingerprint(path) == before
 
 
+def test_geopackage_attribute_table_with_coordinate_columns(tmp_path):
+    wells = build_wells(25, seed=8)
+    table = pd.DataFrame(wells.drop(columns="geometry"))
+    table["easting"], table["northing"] = wells.geometry.x, wells.geometry.y
+    path = tmp_path / "table.gpkg"
+    pyogrio.write_dataframe(table, path, layer="readings")
+    before = fingerprint(path)
+    gdf, source = psio.read_points(path, crs="EPSG:32633")
+    assert source.layer == "readings" and source.coordinate_columns == ("easting", "northing")
+    assert gdf.crs.equals("EPSG:32633")
+    np.testing.assert_array_equal(gdf.geometry.x.to_numpy(), wells.geometry.x.to_numpy())
+    assert fingerprint(path) == before
+
+
 def test_csv_explicit_columns_and_errors(tmp_path):
     wells = build_wells(10, seed=6)
     path = write_points(wells, tmp_path / "odd.csv", xy_names=("e_utm", "n_utm"))
