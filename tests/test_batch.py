@@ -668,3 +668,27 @@ def test_a_worker_killed_mid_run_is_replaced_and_its_unit_redone(tmp_path):
     assert set(index["outcome"]) == {"done"} and len(index) == 8
     for unit in index.index:
         assert len(pyogrio.read_dataframe(out_dir / f"{unit}.gpkg", layer="screened")) == 1000
+
+
+def test_a_second_batch_into_the_same_folder_is_refused_while_the_first_runs(tmp_path):
+    import subprocess
+    import sys
+
+    from pointsift.errors import OutputError
+
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points(40, seed=1)})
+    out_dir = tmp_path / "out"
+    out_dir.mkdir()
+    plan = batch.plan_from_args([str(tmp_path / "a.gpkg")], out_dir=out_dir, options=FAST)
+    holder = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    try:
+        (out_dir / ".batch.lock").write_text(str(holder.pid))
+        with pytest.raises(OutputError, match=rf"Another batch \(process {holder.pid}\) is writing to"):
+            batch.run_batch(plan)
+    finally:
+        holder.kill()
+        holder.wait()
+    # the holder is gone: its lock is stale and the batch takes the folder over
+    result = batch.run_batch(plan)
+    assert [o.outcome for o in result.outcomes] == ["done"]
+    assert not (out_dir / ".batch.lock").exists()

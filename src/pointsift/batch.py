@@ -1559,20 +1559,86 @@ def run_batch(
         from .errors import OutputError
 
         raise OutputError(f"Cannot create the output directory {str(out_dir)!r}: {exc}") from None
-    for stale in out_dir.glob(f"{_STAGING_PREFIX}*"):
-        shutil.rmtree(stale, ignore_errors=True)
-    staging = out_dir / f"{_STAGING_PREFIX}{os.getpid()}"
-    staging.mkdir(exist_ok=True)
-    version = _pointsift_version()
+    lock = _take_lock(out_dir)
+    try:
+        for stale in out_dir.glob(f"{_STAGING_PREFIX}*"):  # left by a run that was killed
+            shutil.rmtree(stale, ignore_errors=True)
+        staging = out_dir / f"{_STAGING_PREFIX}{os.getpid()}"
+        staging.mkdir(exist_ok=True)
+        try:
+            units, outcomes, interrupted = _run_units(plan, out_dir, staging, jobs, force, progress)
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)
+            progress.close()
+        if interrupted and not units:  # stopped while listing the inputs: keep the previous index
+            raise KeyboardInterrupt
+        final: list[UnitOutcome] = []
+        for unit, outcome in zip(units, outcomes):
+            if outcome is None:
+                outcome = UnitOutcome(unit=unit, outcome=NOT_RUN, message="not run: the batch was stopped by Ctrl-C.")
+            final.append(outcome)
+        result = BatchResult(outcomes=final, seconds=0.0, interrupted=interrupted)
+        result.index_csv, result.index_gpkg = write_index(final, out_dir)
+    finally:
+        lock.unlink(missing_ok=True)
+    result.seconds = time.perf_counter() - started
+    return result
 
-    units = expand_units(plan)
-    outcomes: list[UnitOutcome | None] = [None] * len(units)
+
+_LOCK_NAME = ".batch.lock"
+
+
+def _take_lock(out_dir: Path) -> Path:
+    """Claim the output folder, so two batches (say, overlapping scheduled runs) never write it at once."""
+    from .errors import OutputError
+
+    lock = out_dir / _LOCK_NAME
+    for _ in range(2):
+        try:
+            handle = os.open(lock, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
+        except FileExistsError:
+            try:
+                holder = int(lock.read_text().strip() or "0")
+            except (OSError, ValueError):
+                holder = 0
+            if holder and _alive(holder):
+                raise OutputError(
+                    f"Another batch (process {holder}) is writing to {str(out_dir)!r}. Wait for it to finish, "
+                    f"or choose another --out-dir. If no batch is running, delete {str(lock)!r}."
+                ) from None
+            lock.unlink(missing_ok=True)  # left by a run that was killed
+            continue
+        with os.fdopen(handle, "w") as stream:
+            stream.write(str(os.getpid()))
+        return lock
+    raise OutputError(f"Cannot claim {str(out_dir)!r} for the batch; delete {str(lock)!r} and run again.")
+
+
+def _alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:  # exists, owned by someone else
+        return True
+    return True
+
+
+def _run_units(plan, out_dir, staging, jobs, force, progress):
+    """Expand, check what is up to date, screen the rest; returns (units, outcomes, interrupted)."""
+    version = _pointsift_version()
+    units: list[Unit] = []
+    outcomes: list[UnitOutcome | None] = []
     tasks: list[tuple[int, _Task]] = []
     hashes: dict[Path, str] = {}
-    progress.start(len(units))
     interrupted = False
     try:
         with _StopRequest(progress) as stop:
+            units = expand_units(plan)
+            outcomes = [None] * len(units)
+            progress.start(len(units))
             for number, unit in enumerate(units):
                 if stop.requested:
                     break
@@ -1625,19 +1691,7 @@ def run_batch(
             interrupted = stop.requested
     except KeyboardInterrupt:
         interrupted = True
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
-
-    final: list[UnitOutcome] = []
-    for unit, outcome in zip(units, outcomes):
-        if outcome is None:
-            outcome = UnitOutcome(unit=unit, outcome=NOT_RUN, message="not run: the batch was stopped by Ctrl-C.")
-        final.append(outcome)
-    progress.close()
-    result = BatchResult(outcomes=final, seconds=0.0, interrupted=interrupted)
-    result.index_csv, result.index_gpkg = write_index(final, out_dir)
-    result.seconds = time.perf_counter() - started
-    return result
+    return units, outcomes, interrupted
 
 
 def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
