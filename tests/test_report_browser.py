@@ -62,10 +62,17 @@ class DevTools:
             "--proxy-bypass-list=<-loopback>", f"--window-size={VIEWPORT[0]},{VIEWPORT[1]}",
             "--remote-debugging-pipe", "about:blank",
         ]
+        # pass_fds keeps 3 and 4 open in the child, and needs them open here first
+        placeholders = []
+        for fd in (3, 4):
+            try:
+                os.fstat(fd)
+            except OSError:
+                placeholders.append(os.open(os.devnull, os.O_RDONLY))
         self.process = subprocess.Popen([CHROMIUM, *flags], stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
                                         stderr=subprocess.DEVNULL, preexec_fn=child_fds, pass_fds=(3, 4))
-        os.close(to_browser_r)
-        os.close(from_browser_w)
+        for fd in (to_browser_r, from_browser_w, *placeholders):
+            os.close(fd)
         self._next_id = 0
         self._replies: dict[int, dict] = {}
         self.events: list[dict] = []
