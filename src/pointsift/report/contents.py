@@ -125,14 +125,14 @@ def _summary_figures(s) -> dict:
     return plain(s.as_dict())
 
 
-def _with_units(fig, value_label: str):
+def _with_units(fig, value_label: str, unit_of: str | None = None):
     """Put units on axis labels of figures drawn by the method modules (separations are metres)."""
     for ax in fig.axes:
         x, y = ax.get_xlabel(), ax.get_ylabel()
         if x == "separation":
             ax.set_xlabel("separation (m)")
         if y == "semivariance":
-            ax.set_ylabel(f"semivariance (squared units of {value_label})")
+            ax.set_ylabel(f"semivariance (squared units of {unit_of or value_label})")
         for side, text in (("x", x), ("y", y)):
             if text in ("value at tail", "value at head"):
                 new = f"{text.replace('value', value_label)}"
@@ -572,7 +572,7 @@ def collect(
             made_here = variogram is None
             if made_here:
                 variogram = analyse_variogram(xy, residual_values, seed=seed)
-            fig = _with_units(plot_variogram(variogram), basis_label)
+            fig = _with_units(plot_variogram(variogram), basis_label, value_column)
             figs["variogram"] = {"uri": fg.figure_data_uri(fig), "alt": "Semivariograms with the fitted model"}
             summary["variogram"] = {
                 "available": True,
