@@ -131,12 +131,16 @@ def _draw_subsets(rng, draws: int, k: int, population: int) -> np.ndarray:
     idx = rng.integers(0, population, size=(draws, k))
     if k < 2:
         return idx
+    # rejection: redraw the sets holding a repeat; only those can still hold one,
+    # so only they are checked again (the same draws as checking every row)
+    todo = np.arange(draws)
     for _ in range(200):
-        sorted_idx = np.sort(idx, axis=1)
+        sorted_idx = np.sort(idx[todo], axis=1)
         clash = (np.diff(sorted_idx, axis=1) == 0).any(axis=1)
         if not clash.any():
             return idx
-        idx[clash] = rng.integers(0, population, size=(int(clash.sum()), k))
+        todo = todo[clash]
+        idx[todo] = rng.integers(0, population, size=(todo.size, k))
     raise RuntimeError("could not draw distinct neighbour sets; too few points for k")
 
 
