@@ -419,6 +419,8 @@ def test_describe_report_of_a_screened_layer_uses_its_statuses(screened, tmp_pat
     assert code == 0
     summary = json.loads(json_path.read_text())
     assert summary["counts"] == screened["summary"]["counts"]
+    local = next(s for s in summary["sections"] if s["id"] == "local")
+    assert not local["available"] and "screened before" in local["note"]
     assert [r["row"] for r in summary["flagged"]["rows"]] == [r["row"] for r in screened["summary"]["flagged"]["rows"]]
 
 

@@ -512,6 +512,10 @@ def collect(
             },
         }
         _section(summary, "local", "Local evidence", True)
+    elif screened:
+        _section(summary, "local", "Local evidence", False,
+                 "This layer was screened before; the residual map and the neighbour scatter are made with the "
+                 "screen itself: run 'pointsift screen --report' on the original input.")
     else:
         _section(summary, "local", "Local evidence", False,
                  "The residual map and the neighbour scatter need a screen: run 'pointsift screen' or "
