@@ -245,13 +245,18 @@ def local_autocorrelation(
         if k >= n:  # every other point is a neighbour: nothing to permute
             ge[group] = le[group] = draws[group] = 0
             continue
-        subsets = _draw_subsets(rng, extended, int(k), n)
+        subsets = _draw_subsets(rng, permutations, int(k), n)
         sums = z[subsets].sum(axis=1)
         g_rows = rows[group]
-        g_ge, g_le, g_valid = _shared_counts(z, g_rows, lag_sum[g_rows], subsets[:permutations], sums[:permutations])
+        g_ge, g_le, g_valid = _shared_counts(z, g_rows, lag_sum[g_rows], subsets, sums)
         if refine:
             floor = np.minimum(g_ge, g_le) == 0
             if floor.any():
+                # the extra draws only for neighbour counts with points at the floor
+                # (a distance band has dozens of counts, most without any)
+                more = _draw_subsets(rng, extended - permutations, int(k), n)
+                subsets = np.concatenate([subsets, more])
+                sums = np.concatenate([sums, z[more].sum(axis=1)])
                 f_ge, f_le, f_valid = _shared_counts(z, g_rows[floor], lag_sum[g_rows][floor], subsets, sums)
                 g_ge[floor], g_le[floor], g_valid[floor] = f_ge, f_le, f_valid
         ge[group], le[group], draws[group] = g_ge, g_le, g_valid
