@@ -379,7 +379,7 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         stem_unit=stem_unit,
         split=int(stem_split) if stem_split else None,
         suspect_mask=suspects,
-        figures=figures_dir is not None or report_path is not None,
+        figures=figures_dir is not None,
         bin_width=bin_width,
         value_label=config.value,
     )

@@ -280,7 +280,7 @@ def _run_section(summary: dict) -> str:
         ("Rows", format_number(inp.get("rows"))),
         ("Value column", f"<code>{_text(inp.get('value_column'))}</code>"),
         ("Id column", f"<code>{_text(inp.get('id_column'))}</code>" if inp.get("id_column") else "none (rows are named by number)"),
-        ("Output GeoPackage", _text(inp.get("output_path"))),
+        ("Output GeoPackage", _text(inp.get("output_path")) if inp.get("output_path") else "none written"),
         ("CRS of the input", f"<code>{_text(crs.get('input'))}</code>"),
         ("CRS used for distances", f"{_text(crs.get('work_name'))} (<code>{_text(crs.get('work'))}</code>)"
          + (f"; grid north differs from true north by {abs(north):.2f}&deg; at the centre" if north is not None else "")),
