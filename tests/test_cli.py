@@ -295,6 +295,14 @@ def test_data_errors_exit_1_with_message_and_input_untouched(tmp_path, capfd, ma
     assert not out.exists() and leftovers(tmp_path) == []
 
 
+def test_missing_input_and_folder_input(tmp_path, capfd):
+    code, text = run(["screen", tmp_path / "nowhere.gpkg", "--value", "level_m", "--out", tmp_path / "o.gpkg"], capfd)
+    assert code == 1 and "does not exist. Check the path and spelling" in text
+    code, text = run(["screen", tmp_path, "--value", "level_m", "--out", tmp_path / "o.gpkg"], capfd)
+    assert code == 2 and "is a directory" in text
+    assert list(tmp_path.iterdir()) == []
+
+
 def test_existing_output_without_overwrite_is_left_untouched(tmp_path, capfd, wells_gpkg):
     out = tmp_path / "out.gpkg"
     out.write_bytes(b"an earlier result")
