@@ -68,7 +68,7 @@ figure img { max-width:100%; height:auto; border:1px solid var(--line); border-r
 figcaption { color:var(--muted); font-size:.88rem; margin-top:4px; }
 .two { display:grid; grid-template-columns: minmax(0, 1.15fr) minmax(0, 1fr); gap:20px; align-items:start; }
 .two.facts { grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap:28px; }
-@media (max-width: 900px) { .two { grid-template-columns: 1fr; } }
+@media (max-width: 900px) { .two, .two.facts { grid-template-columns: 1fr; } }
 pre.stem { font-family: ui-monospace, "DejaVu Sans Mono", Menlo, Consolas, monospace; font-size:.8rem; line-height:1.25; background:var(--soft); padding:10px; border-radius:6px; overflow:auto; max-height:520px; margin:0; }
 .unavailable { padding:10px 14px; background:var(--soft); border:1px dashed #aab2bc; border-radius:6px; color:#333; }
 .controls { display:flex; flex-wrap:wrap; gap:10px 18px; align-items:center; margin:6px 0 10px; }
