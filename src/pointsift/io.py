@@ -250,7 +250,11 @@ def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str):
     ok = np.isfinite(xs) & np.isfinite(ys)
     geometry = np.full(len(frame), None, dtype=object)
     geometry[ok] = shapely.points(xs[ok], ys[ok])
-    gdf = gpd.GeoDataFrame(frame, geometry=gpd.GeoSeries(geometry, index=frame.index), crs=crs)
+    # a table may already have a "geometry" column (WKT text, say): keep it as it is
+    name = _free_name("geometry", frame.columns)
+    gdf = gpd.GeoDataFrame(frame.copy())
+    gdf[name] = gpd.GeoSeries(geometry, index=frame.index)
+    gdf = gdf.set_geometry(name, crs=crs)
     return gdf, (str(cx), str(cy))
 
 
