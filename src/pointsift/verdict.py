@@ -173,8 +173,12 @@ def decide(
         main[i] = text
     parts = [np.array(main, dtype=object)]
 
+    flagged = np.isin(status, ("suspect", "review"))
     if autocorr is not None:
-        significant = np.isfinite(autocorr.p_adjusted) & (autocorr.p_adjusted <= config.fdr) & ~unscreened
+        # supporting evidence: stated for flagged points (a smooth field puts
+        # half of all points in significant clusters; saying so on every ok
+        # row would bury the message)
+        significant = np.isfinite(autocorr.p_adjusted) & (autocorr.p_adjusted <= config.fdr) & flagged
         outlier = significant & np.isin(autocorr.quadrant, (2, 4))
         cluster = significant & np.isin(autocorr.quadrant, (1, 3))
         text = np.full(n, "", dtype=object)
@@ -200,7 +204,6 @@ def decide(
         else:
             text[i] = f"coincident record disagrees by {_num(diff[i])} ({other}); the neighbours cannot tell which is right"
     parts.append(text)
-    flagged = np.isin(status, ("suspect", "review"))
     if slips is not None:
         parts.append(np.where(flagged, slips[1], ""))
     for extra in supporting:
