@@ -147,7 +147,7 @@ def test_significant_local_moran_is_named_in_plain_words():
         permutations=np.full(n, 999),
         kernel="test",
     )
-    out = run([6.0, 0.2, 3.2, 0.3], autocorr=auto)
+    out = run([6.0, 0.2, 3.7, 0.3], autocorr=auto)
     assert "local Moran's I: spatial outlier, high among low (p = 1e-05, adjusted 4e-05; Gi* z = 0.5)" in out["screen_reasons"][0]
     # supporting evidence is stated on flagged rows only: row 1 is significant
     # but ok (cluster membership alone is not an error), row 2 flagged but not significant
