@@ -154,19 +154,33 @@ def test_column_types_and_values_survive_exactly(tmp_path, capfd):
 
 @pytest.mark.parametrize(
     "column, values",
-    [("FID", lambda n: np.arange(n)[::-1]), ("fid", lambda n: [f"F{i % 4}" for i in range(n)]), ("fid", lambda n: np.full(n, 7)), ("geom", lambda n: ["x"] * n)],
-    ids=["FID-integers", "fid-text", "fid-repeated", "geom-text"],
+    [
+        ("FID", lambda n: np.arange(n)[::-1]),
+        ("fid", lambda n: [f"F{i % 4}" for i in range(n)]),
+        ("fid", lambda n: np.full(n, 7)),
+        ("geom", lambda n: ["x"] * n),
+        ("geometry", lambda n: [f"POINT ({i} {i})" for i in range(n)]),
+    ],
+    ids=["FID-integers", "fid-text", "fid-repeated", "geom-text", "geometry-wkt"],
 )
 def test_input_columns_named_like_geopackage_internals_are_kept(tmp_path, capfd, column, values):
     # exported tables often carry a 'fid' or 'FID' column; the GeoPackage's own key
     # and geometry columns must not take it over
-    wells = build_wells(80, seed=38)
-    wells[column] = values(80)
-    source = write_points(wells, tmp_path / "export.csv")
+    source = write_points(build_wells(80, seed=38), tmp_path / "export.csv")
+    table = pd.read_csv(source)
+    table.insert(2, column, values(80))
+    table.to_csv(source, index=False)
     out = tmp_path / "out.gpkg"
     code, text = run(["screen", source, "--value", "level_m", "--crs", "EPSG:32633", "--out", out, *FAST], capfd)
     assert code == 0, text
-    check_written(out, source, expect_crs="EPSG:32633")  # every input column, values and order
+    if column != "geometry":
+        check_written(out, source, expect_crs="EPSG:32633")  # every input column, values and order
+    # Reference: SQLite itself (pyogrio names its geometry "geometry" and would hide a text column of that name).
+    with sqlite3.connect(out) as db:
+        names = [row[1] for row in db.execute("PRAGMA table_info(screened)")]
+        kept = [row[0] for row in db.execute(f'SELECT "{column}" FROM screened ORDER BY rowid')]
+    assert names[2 : 2 + len(table.columns)] == list(table.columns)  # after the key and geometry columns
+    assert kept == table[column].tolist()
 
 
 @pytest.mark.xfail(
