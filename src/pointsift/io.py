@@ -252,9 +252,9 @@ def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str):
     geometry[ok] = shapely.points(xs[ok], ys[ok])
     # a table may already have a "geometry" column (WKT text, say): keep it as it is
     name = _free_name("geometry", frame.columns)
-    gdf = gpd.GeoDataFrame(frame.copy())
-    gdf[name] = gpd.GeoSeries(geometry, index=frame.index)
-    gdf = gdf.set_geometry(name, crs=crs)
+    table = pd.DataFrame(frame).copy()
+    table[name] = gpd.GeoSeries(geometry, index=frame.index)
+    gdf = gpd.GeoDataFrame(table, geometry=name, crs=crs)
     return gdf, (str(cx), str(cy))
 
 
