@@ -559,7 +559,7 @@ def _fit_one(model: str, h: np.ndarray, g: np.ndarray, n: np.ndarray, h_max: flo
         for x0 in candidates:
             try:
                 res = least_squares(residual, x0, jac=jacobian, bounds=(lower, upper),
-                                    method="trf", x_scale="jac", max_nfev=2000)
+                                    method="trf", x_scale="jac", max_nfev=200, ftol=1e-6, xtol=1e-6)
             except (ValueError, FloatingPointError):
                 continue
             crit = float(np.sum(res.fun**2))
