@@ -450,3 +450,17 @@ def test_report_write_refuses_the_input_and_missing_folders(screened, tmp_path):
     sections = {s["id"]: s for s in report.summary["sections"]}
     assert not sections["lag_pairs"]["available"] and "Not available" in report.html
     assert pd.isna(report.summary["lag_pairs"].get("pairs_flagged", np.nan))
+
+
+def test_ids_and_reasons_are_shown_as_text_not_markup(tmp_path):
+    from pointsift.pipeline import screen_frame
+
+    wells = build_wells(80, seed=8)
+    wells["well_id"] = [f'<b>W"{i}&</b>' for i in range(80)]
+    wells.loc[10, "level_m"] *= 10.0  # a decimal slip, so the table has a row
+    result = screen_frame(wells, ScreenConfig(value="level_m", id="well_id"))
+    report = build_report(result, lag_pairs=False, variogram=False)
+    page = _parse(report.html)
+    assert "<b>W" not in report.html
+    shown = {r["cells"][1]["text"] for r in page.table_rows}
+    assert '<b>W"10&</b>' in shown
