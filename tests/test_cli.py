@@ -88,6 +88,17 @@ def check_written(out: Path, source: Path, *, expect_crs):
     observed = layer["screen_status"].value_counts().to_dict()
     assert counts == {s: observed.get(s, 0) for s in STATUSES}
     assert CRS.from_user_input(info["work_crs"]).is_projected
+    # issue 2: parameters, library versions, input path, time
+    assert json.loads(info["parameters"])["value"] == "level_m"
+    versions = json.loads(info["versions"])
+    import importlib.metadata as metadata
+
+    for package in ("numpy", "scipy", "pyproj", "pyogrio", "geopandas"):
+        assert versions[package] == metadata.version(package)  # Reference: installed package metadata
+    assert Path(info["input_path"]).resolve() == source.resolve()
+    from datetime import datetime
+
+    assert datetime.fromisoformat(info["created"]).tzinfo is not None
     return layer, info
 
 
