@@ -7,6 +7,7 @@ second on these small datasets. One child computes everything, once per module.
 """
 
 import json
+import os
 import subprocess
 import sys
 import textwrap
@@ -59,7 +60,7 @@ def baltimore(tmp_path_factory):
     folder = tmp_path_factory.mktemp("esda")
     job, out = folder / "job.json", folder / "out.json"
     job.write_text(json.dumps({"y": y.tolist(), "neighbours": neighbours}))
-    env = {**__import__("os").environ, "NUMBA_DISABLE_JIT": "1"}
+    env = {**os.environ, "NUMBA_DISABLE_JIT": "1"}
     done = subprocess.run([sys.executable, "-c", ESDA_CHILD, str(job), str(out)], env=env, capture_output=True, text=True, timeout=300)
     assert done.returncode == 0, done.stderr[-2000:]
     ref = json.loads(out.read_text())

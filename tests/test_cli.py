@@ -409,10 +409,8 @@ def test_null_empty_and_multipart_geometry(tmp_path, capfd):
     geometry.iloc[3] = shapely.MultiPoint([geometry.iloc[3], geometry.iloc[4]])
     geometry.iloc[5] = shapely.MultiPoint([geometry.iloc[5]])  # single part: fine
     wells = wells.set_geometry(geometry)
-    import geopandas as gpd
-
     source = tmp_path / "w.gpkg"
-    pyogrio.write_dataframe(gpd.GeoDataFrame(wells), source, layer="wells", geometry_type="Unknown", promote_to_multi=False)
+    pyogrio.write_dataframe(wells, source, layer="wells", geometry_type="Unknown", promote_to_multi=False)
     layer, _ = _run_and_read(tmp_path, capfd, source, "--value", "level_m")
     assert layer.loc["W0001", "screen_reasons"] == "no location (no geometry)"
     assert layer.loc["W0002", "screen_reasons"] in ("no location (empty geometry)", "no location (no geometry)")

@@ -7,6 +7,7 @@ neighbours cannot tell, both need review.
 """
 
 import numpy as np
+import pandas as pd
 import pytest
 import shapely
 from conftest import build_wells
@@ -64,7 +65,7 @@ def _with_twin(seed, offset, twin_of=20, shift=(0.2, 0.1)):
     twin["level_m"] = twin["level_m"] + offset
     point = wells.geometry.iloc[twin_of]
     twin = twin.set_geometry([shapely.Point(point.x + shift[0], point.y + shift[1])], crs=wells.crs)
-    return wells._append(twin, ignore_index=True) if hasattr(wells, "_append") else __import__("pandas").concat([wells, twin], ignore_index=True)
+    return pd.concat([wells, twin], ignore_index=True)
 
 
 @pytest.mark.parametrize("seed", [0, 1])
@@ -93,8 +94,6 @@ def test_twins_the_neighbours_cannot_tell_apart_both_review():
     wells.loc[30, "level_m"] = expected + 2.2 * spread
     twin["level_m"] = expected - 2.2 * spread
     twin["well_id"] = "TWIN"
-    import pandas as pd
-
     wells = pd.concat([wells, twin], ignore_index=True)
     out = screen_frame(wells, ScreenConfig(value="level_m", id="well_id", permutations=99)).frame
     assert len(out) == 251

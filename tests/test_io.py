@@ -8,7 +8,6 @@ import hashlib
 import os
 import sqlite3
 
-import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyogrio
