@@ -692,3 +692,26 @@ def test_a_second_batch_into_the_same_folder_is_refused_while_the_first_runs(tmp
     result = batch.run_batch(plan)
     assert [o.outcome for o in result.outcomes] == ["done"]
     assert not (out_dir / ".batch.lock").exists()
+
+
+def test_reports_beside_outputs_and_resumed_like_outputs(tmp_path):
+    from pointsift.cli import main
+
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points(80, seed=2)})
+    plan = tmp_path / "plan.toml"
+    plan.write_text('[batch]\nout_dir = "out"\nreport = true\n[defaults]\nvalue = "level_m"\npermutations = 99\n'
+                    '[[input]]\npath = "a.gpkg"\n')
+    assert main(["-q", "batch", str(plan)]) == 0
+    out_dir = tmp_path / "out"
+    html = (out_dir / "a.html").read_text(encoding="utf-8")
+    assert html.lstrip().lower().startswith("<!doctype html")
+    assert read_index(out_dir).loc["a", "report"] == "a.html"
+    assert main(["-q", "batch", str(plan)]) == 0
+    assert read_index(out_dir).loc["a", "outcome"] == "skipped-up-to-date"
+    (out_dir / "a.html").unlink()  # a missing report makes the unit out of date
+    assert main(["-q", "batch", str(plan)]) == 0
+    assert read_index(out_dir).loc["a", "outcome"] == "done" and (out_dir / "a.html").exists()
+    # the direct form asks for reports with --report
+    assert main(["-q", "batch", str(tmp_path / "a.gpkg"), "--value", "level_m", "--permutations", "99",
+                 "--out-dir", str(tmp_path / "direct"), "--report"]) == 0
+    assert (tmp_path / "direct" / "a.html").exists()

@@ -1252,9 +1252,8 @@ def _screen_unit(task: _Task) -> UnitOutcome:
             overwrite=True,
             frame_filter=_group_filter(unit.by, unit.group) if unit.by else None,
             source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
+            report_path=staged_report,
         )
-        if staged_report is not None:
-            _write_report(run.result, staged_report)
         screened = run.result.frame
         prepared = getattr(run.result, "prepared", None)
         crs = getattr(prepared, "input_crs", None) or screened.crs
@@ -1292,18 +1291,9 @@ def _screen_unit(task: _Task) -> UnitOutcome:
 
 
 def _reports_available() -> bool:
-    import importlib
     import importlib.util
 
-    if importlib.util.find_spec("pointsift.report") is None:
-        return False
-    return hasattr(importlib.import_module("pointsift.report"), "write_report")
-
-
-def _write_report(result, path: Path) -> None:
-    from . import report as preport  # the report module writes self-contained HTML
-
-    preport.write_report(result, path)
+    return importlib.util.find_spec("pointsift.report") is not None
 
 
 def _record_of(outcome: UnitOutcome, version: str) -> dict:

@@ -476,9 +476,10 @@ def _batch_options(func):
 @click.option("--out-dir", type=click.Path(file_okay=False), default=None, help="Folder for the outputs and the batch index (a plan may set out_dir).")
 @click.option("--jobs", "-j", type=click.IntRange(1, None), default=None, help="Worker processes (default 1, or the plan's jobs).")
 @click.option("--force", is_flag=True, help="Redo every input, also those whose output is up to date.")
+@click.option("--report", "batch_report", is_flag=True, help="Also write a self-contained HTML report beside each output.")
 @click.option("-q", "--quiet", "batch_quiet", is_flag=True, help="No progress and no summary.")
 @click.pass_context
-def batch(ctx, inputs, layers, by, out_dir, jobs, force, batch_quiet, x_column, y_column, **options):
+def batch(ctx, inputs, layers, by, out_dir, jobs, force, batch_report, batch_quiet, x_column, y_column, **options):
     """Screen many inputs: PLAN.toml, or files, globs and folders with --value and --out-dir.
 
     Writes one GeoPackage per file, layer or group, and batch-index.csv / .gpkg.
@@ -494,7 +495,7 @@ def batch(ctx, inputs, layers, by, out_dir, jobs, force, batch_quiet, x_column, 
     else:
         chosen = config_from_options(options).as_record()
     result = run_command(inputs, out_dir=out_dir, jobs=jobs, force=force, quiet=quiet, layers=layers, by=by,
-                         x=x_column, y=y_column, options=chosen)
+                         x=x_column, y=y_column, options=chosen, report=batch_report)
     ctx.exit(result.exit_code)
 
 
