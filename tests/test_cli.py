@@ -194,12 +194,6 @@ def test_input_columns_named_like_geopackage_internals_are_kept(tmp_path, capfd,
     assert kept == table[column].tolist()
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="the output renumbers GeoPackage feature ids 1..n: after deletions in the input (fids 1, 2, 5, ...) "
-    "a join of the flag layer back to the input by fid pairs the wrong wells "
-    "(pyogrio keeps them if read with fid_as_index=True and written with a 'fid' column)",
-)
 def test_feature_ids_are_kept(tmp_path, capfd):
     source = _typed_layer(tmp_path / "typed.gpkg")
     with sqlite3.connect(source) as db:  # a layer edited in a GIS: some features deleted

@@ -33,6 +33,9 @@ __all__ = [
 
 log = logging.getLogger(__name__)
 
+#: Index name marking GeoPackage feature ids read from the input.
+_FEATURE_ID = "__pointsift_feature_id__"
+
 #: Name of the screened point layer in output GeoPackages.
 SCREENED_LAYER = "screened"
 
@@ -192,7 +195,11 @@ def read_points(
     elif layer not in layers:
         raise InputError(f"{str(path)!r} has no layer {layer!r}. Layers present: {', '.join(layers) or 'none'}.")
     try:
-        frame = pyogrio.read_dataframe(path, layer=layer, use_arrow=False)
+        # keep GeoPackage feature ids (a layer edited in a GIS has gaps): the
+        # output writes them back, so the flag layer joins to the input by fid
+        frame = pyogrio.read_dataframe(path, layer=layer, use_arrow=False, fid_as_index=suffix == ".gpkg")
+        if suffix == ".gpkg":
+            frame.index.name = _FEATURE_ID
     except Exception as exc:
         raise InputError(f"Cannot read layer {layer!r} of {str(path)!r}: {exc}.") from exc
     driver = _VECTOR_SUFFIXES.get(suffix, "vector")
@@ -323,6 +330,9 @@ def write_geopackage(
                 # the GeoPackage's own key and geometry columns must not take an input
                 # column's name: GDAL would swallow a "FID" column as the feature id
                 options = {"FID": _free_name("fid", attributes), "GEOMETRY_NAME": _free_name("geom", attributes)}
+                if frame.index.name == _FEATURE_ID:
+                    # the input's own feature ids, kept as the output's
+                    frame = frame.rename_axis(options["FID"]).reset_index()
                 pyogrio.write_dataframe(
                     frame, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary),
                     promote_to_multi=False, layer_options=options,

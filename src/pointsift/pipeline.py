@@ -275,12 +275,15 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     counts_nb = graph.counts
     too_few = prepared.usable & (counts_nb < config.min_neighbours)
     reasons = prepared.unscreened_reason.copy()
-    limit = format_length(graph.max_distance)
+    limit = f"within {format_length(graph.max_distance)}" if np.isfinite(graph.max_distance) else "anywhere"
+    twins = pd.Series(prepared.coincident).map(pd.Series(prepared.coincident).value_counts()).to_numpy() - 1
     for row in np.flatnonzero(too_few):
+        found = counts_nb[row]
+        at_spot = f" (besides {twins[row]} record{'s' if twins[row] > 1 else ''} at the same spot)" if prepared.coincident[row] >= 0 else ""
         reasons[row] = (
-            f"no neighbour within {limit}"
-            if counts_nb[row] == 0
-            else f"only {counts_nb[row]} neighbour{'s' if counts_nb[row] > 1 else ''} within {limit} "
+            f"no neighbour {limit}{at_spot}"
+            if found == 0
+            else f"only {found} neighbour{'s' if found > 1 else ''} {limit}{at_spot} "
             f"(at least {config.min_neighbours} needed); too isolated to judge"
         )
 
