@@ -543,8 +543,8 @@ def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs
     for seed in range(12):
         write_gpkg(data / f"net{seed:02d}.gpkg", {"wells": synthetic_points(400, seed=seed)})
     out_dir = tmp_path / "out"
-    command = [sys.executable, "-m", "pointsift.cli", "batch", str(data), "--value", "level_m", "--out-dir",
-               str(out_dir), "--jobs", str(jobs)]
+    command = [sys.executable, "-m", "pointsift.cli", "batch", str(data), "--value", "level_m", "--permutations", "99",
+               "--out-dir", str(out_dir), "--jobs", str(jobs)]
     process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     deadline = time.monotonic() + 120
     while not list(out_dir.glob("*.batch.json")) and time.monotonic() < deadline and process.poll() is None:
