@@ -68,6 +68,7 @@ __all__ = [
     "parse_plan",
     "plan_from_args",
     "expand_units",
+    "group_labels",
     "unit_fingerprint",
     "run_batch",
     "index_frame",
@@ -933,7 +934,7 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
                     drafts.append(((spec.name or path.stem, name), dict(
                         base_fields, layer=name,
                         problem=f"layer {name!r} is not in {path.name}; its layers are: "
-                                f"{', '.join(available) or '(none)'}. Fix 'layers' in {spec.where}.")))
+                                f"{', '.join(available) or '(none)'}.{_suggest(name, available)}")))
                 layers = [name for name in layers if name not in missing]
             for layer in layers:
                 stem = (spec.name or path.stem,) + ((layer,) if layer_in_name and layer else ())
@@ -951,7 +952,7 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
                     drafts.append((stem, dict(fields, problem=(
                         f"grouping column {spec.by!r} is not in {path.name}"
                         f"{f' layer {layer!r}' if layer else ''}; its columns are: {', '.join(map(str, columns))}."
-                        f"{_suggest(spec.by, map(str, columns))} Fix 'by' in {spec.where}."))))
+                        f"{_suggest(spec.by, map(str, columns))}"))))
                     continue
                 labels = group_labels(frame[spec.by])
                 present = sorted({label for label in labels if label is not None})
