@@ -209,8 +209,9 @@ def decide(
     for extra in supporting:
         parts.append(np.where(flagged, extra, ""))
 
-    reasons = pd.Series(parts[0])
+    reasons = np.asarray(parts[0], dtype=object).copy()
     for extra in parts[1:]:
-        extra = pd.Series(extra)
-        reasons = reasons.where(extra == "", reasons + "; " + extra)
-    return pd.DataFrame({"screen_status": status, "screen_score": score, "screen_reasons": reasons.to_numpy(dtype=object)})
+        extra = np.asarray(extra, dtype=object)
+        for i in np.flatnonzero(extra != ""):  # only the few rows with more to say
+            reasons[i] = f"{reasons[i]}; {extra[i]}"
+    return pd.DataFrame({"screen_status": status, "screen_score": score, "screen_reasons": reasons})
