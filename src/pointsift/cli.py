@@ -521,6 +521,9 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         click.echo("Stopped.", err=True)
         return 130
+    except OSError as exc:  # disk full, permissions, a vanished folder
+        click.echo(f"Error: {exc}. Check the path, its permissions and the free disk space.", err=True)
+        return EXIT_DATA
     except Exception as exc:  # an internal error: say so plainly
         click.echo(f"Internal error: {type(exc).__name__}: {exc}", err=True)
         if verbose:

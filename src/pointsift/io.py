@@ -232,9 +232,16 @@ def _read_csv(path: Path) -> pd.DataFrame:
         # which would otherwise stick to the first column's name
         return pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True, encoding="utf-8-sig")
     except UnicodeDecodeError:
-        return pd.read_csv(path, sep=sep, engine="python", encoding="latin-1", skipinitialspace=True)
+        pass  # not UTF-8: an older spreadsheet export, read as Latin-1 below
     except Exception as exc:
         raise InputError(f"Cannot read {str(path)!r} as CSV: {exc}. Check the delimiter and quoting.") from exc
+    try:
+        return pd.read_csv(path, sep=sep, engine="python", encoding="latin-1", skipinitialspace=True)
+    except Exception as exc:
+        raise InputError(
+            f"Cannot read {str(path)!r} as CSV (not UTF-8, tried Latin-1): {exc}. "
+            "Check the delimiter and quoting, or save the file as UTF-8."
+        ) from exc
 
 
 def _find_coordinate_columns(columns, x: str | None, y: str | None, where: str) -> tuple[str, str]:
