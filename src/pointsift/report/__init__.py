@@ -104,6 +104,11 @@ def _write_text(path, text: str, protect: tuple) -> Path:
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
             handle.write(text)
+        # mkstemp makes the file private (0600); give it the usual permissions
+        # so a report on a shared drive can be opened by colleagues
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, target)
     except BaseException:
         if os.path.exists(tmp):
