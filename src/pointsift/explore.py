@@ -22,7 +22,7 @@ from .errors import ConfigError, InputError
 from .methods.stemleaf import StemLeaf, stem_and_leaf_table
 from .methods.strips import DEFAULT_DIRECTIONS, MIN_STRIP_N, StripResult, strip_summary
 from .methods.summary import Summary, SummaryShift, global_summary, summary_shift
-from .methods.trend import PolishSurface, TrendSurface, median_polish_surface, trend_surface
+from .methods.trend import PolishSurface, TrendSurface, regional_trend
 from .prepare import Prepared
 
 __all__ = ["Description", "describe", "description_layers", "TREND_CHOICES", "STRIPS_LAYER"]
@@ -94,28 +94,10 @@ class Description:
 
 
 def _fit_trend(prepared: Prepared, mode: str):
-    x, y, v = prepared.xy[:, 0], prepared.xy[:, 1], prepared.values
-    n = int(prepared.usable.sum())
-    if mode == "none":
-        return None, {"method": "none"}
-    if n < 10:
-        return None, {"method": "none", "note": f"trend not fitted: only {n} usable points (10 needed)"}
-    try:
-        if mode == "polish":
-            fit = median_polish_surface(x, y, v)
-            method = f"median polish on {fit.cell_size:g} m cells"
-        else:
-            # The same rule as the screen's automatic detrending: a plane under 30 points.
-            order = 1 if mode == "surface1" or (mode == "auto" and n < 30) else 2
-            fit = trend_surface(x, y, v, order=order, weight_function="bisquare")
-            method = f"robust trend surface, order {order} (bisquare IRLS)"
-    except InputError as exc:
-        return None, {"method": "none", "note": f"trend not fitted: {exc}"}
-    return fit, {
-        "method": method,
-        "variance_explained": float(fit.variance_explained),
-        "robust_variance_explained": float(fit.robust_variance_explained),
-    }
+    # one rule for the screen and describe (methods.trend.regional_trend); all points, no sample
+    values = np.where(prepared.usable, prepared.values, np.nan)
+    fit, _, info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, mode)
+    return fit, info
 
 
 def describe(

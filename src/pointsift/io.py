@@ -20,7 +20,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from .errors import CRSError, InputError, OutputError
+from .errors import InputError, OutputError
 
 __all__ = [
     "SourceInfo",

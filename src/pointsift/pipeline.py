@@ -130,32 +130,11 @@ _TREND_SAMPLE = 20_000
 
 def _detrend(prepared: Prepared, mode: str):
     """Values with the regional trend taken out, for the cluster statistics."""
-    from .methods import trend
+    from .methods.trend import regional_trend
 
-    x, y, v = prepared.xy[:, 0], prepared.xy[:, 1], prepared.values
-    usable = prepared.usable
-    if mode == "none" or usable.sum() < 10:
-        return v, {"method": "none"}
-    try:
-        if mode == "polish":
-            fit = trend.median_polish_surface(x, y, v)
-            return fit.residual, {"method": "median polish"}
-        order = 1 if mode == "surface1" or (mode == "auto" and usable.sum() < 30) else 2
-        rows = np.flatnonzero(usable)
-        note = {}
-        if rows.size > _TREND_SAMPLE:
-            # a smooth surface of at most 6 terms: a seeded sample fixes it as well as all points
-            rows = np.sort(np.random.default_rng(0).choice(rows, _TREND_SAMPLE, replace=False))
-            note = {"fitted_on_sample": _TREND_SAMPLE}
-        fit = trend.trend_surface(x[rows], y[rows], v[rows], order=order, weight_function="bisquare")
-        residual = v - fit.predict(x, y)
-        return residual, {
-            "method": f"robust trend surface, order {order} (bisquare IRLS)",
-            "variance_explained": round(float(fit.variance_explained), 4),
-            **note,
-        }
-    except InputError as exc:
-        return v, {"method": "none", "note": f"trend not removed: {exc}"}
+    values = np.where(prepared.usable, prepared.values, np.nan)
+    _, residual, info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, mode, sample=_TREND_SAMPLE)
+    return residual, info
 
 
 def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_info: dict, config: ScreenConfig):

@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .config import ScreenConfig
-from .io import SCREENED_LAYER, SourceInfo, read_points, run_info_table, write_geopackage
+from .io import SCREENED_LAYER, read_points, run_info_table, write_geopackage
 from .pipeline import ScreenResult, screen_frame
 
 __all__ = ["RunResult", "screen_file", "write_screen"]

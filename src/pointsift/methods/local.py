@@ -34,7 +34,6 @@ the wells around it.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -221,7 +220,6 @@ def robust_plane_predict(
         inflation, and Laplacian sign indicator ``a_xx + a_yy``; NaN with
         fewer than 8 weighted neighbours).
     """
-    n = xy.shape[0]
     idx = graph.indices
     mask = graph.mask & np.isfinite(values[np.where(idx >= 0, idx, 0)])
     safe = np.where(mask, idx, 0)

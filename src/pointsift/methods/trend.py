@@ -55,6 +55,7 @@ __all__ = [
     "median_polish_surface",
     "trend_surface",
     "surface_design",
+    "regional_trend",
     "WEIGHT_FUNCTIONS",
 ]
 
@@ -545,3 +546,68 @@ def trend_surface(
         variance_explained=share,
         robust_variance_explained=robust,
     )
+
+
+def regional_trend(x, y, values, mode: str = "auto", *, sample: int | None = None, seed: int = 0):
+    """The regional trend the screen and ``describe`` take out, by one rule.
+
+    Parameters
+    ----------
+    x, y, values : array_like
+        Coordinates (metres) and values; non-finite values are left out.
+    mode : {"auto", "none", "surface1", "surface2", "polish"}
+        ``auto`` is a robust quadratic surface (bisquare IRLS), or a plane
+        under 30 usable points; ``polish`` is median polish on a cell grid.
+    sample : int, optional
+        Fit a surface on at most this many points (seeded sample) and
+        evaluate it everywhere: a surface of at most six terms is fixed as
+        well by 20,000 points as by a million.
+    seed : int
+        Seed of that sample.
+
+    Returns
+    -------
+    fit : TrendSurface, PolishSurface or None
+        None when no trend was fitted.
+    residual : ndarray
+        Values minus the trend (the values themselves when no trend).
+    info : dict
+        ``method``, ``variance_explained`` and any note, for the run record.
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    v = np.asarray(values, dtype=float)
+    usable = np.isfinite(x) & np.isfinite(y) & np.isfinite(v)
+    n = int(usable.sum())
+    if mode == "none":
+        return None, v, {"method": "none"}
+    if n < 10:
+        return None, v, {"method": "none", "note": f"trend not fitted: only {n} usable points (10 needed)"}
+    try:
+        if mode == "polish":
+            fit = median_polish_surface(x, y, v)
+            return fit, fit.residual, {
+                "method": f"median polish on {fit.cell_size:g} m cells",
+                "variance_explained": float(fit.variance_explained),
+                "robust_variance_explained": float(fit.robust_variance_explained),
+            }
+        order = 1 if mode == "surface1" or (mode == "auto" and n < 30) else 2
+        note = {}
+        if sample is not None and n > sample:
+            rows = np.random.default_rng(seed).choice(np.flatnonzero(usable), sample, replace=False)
+            in_sample = np.zeros(v.size, dtype=bool)
+            in_sample[rows] = True
+            fit = trend_surface(x, y, np.where(in_sample, v, np.nan), order=order, weight_function="bisquare")
+            residual = v - fit.predict(x, y)
+            note = {"fitted_on_sample": int(sample)}
+        else:
+            fit = trend_surface(x, y, v, order=order, weight_function="bisquare")
+            residual = fit.residual
+        return fit, residual, {
+            "method": f"robust trend surface, order {order} (bisquare IRLS)",
+            "variance_explained": float(fit.variance_explained),
+            "robust_variance_explained": float(fit.robust_variance_explained),
+            **note,
+        }
+    except InputError as exc:
+        return None, v, {"method": "none", "note": f"trend not fitted: {exc}"}
