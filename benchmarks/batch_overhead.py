@@ -4,7 +4,8 @@ Writes N invented GeoPackages of P scattered points each (smooth synthetic
 water levels with a few gross errors), then measures
 
 1. the screening itself: ``pointsift.run.screen_file`` called on every input
-   in one warm process (read + screen + write, no batch machinery);
+   in one warm process (read + screen + write, no batch machinery), once
+   before and once after the batches (the faster loop is the reference);
 2. ``run_batch`` with ``--jobs 1`` and ``--jobs 2`` into fresh output folders;
 3. a rerun where every unit is up to date (hashing + record check only).
 
@@ -83,12 +84,17 @@ def main() -> None:
         screen_file(paths[0], work / "warm.gpkg", config, overwrite=True)
         plain = work / "plain"
         plain.mkdir()
-        started = time.perf_counter()
-        for path in paths:
-            screen_file(path, plain / path.name, config, overwrite=True)
-        screening = time.perf_counter() - started
-        print(f"screen_file on every input, one warm process: {screening:.1f} s "
-              f"({screening / len(paths) * 1000:.0f} ms per input)")
+
+        def screening_loop() -> float:
+            started = time.perf_counter()
+            for path in paths:
+                screen_file(path, plain / path.name, config, overwrite=True)
+            return time.perf_counter() - started
+
+        loops = [screening_loop()]
+        print(f"screen_file on every input, one warm process: {loops[0]:.1f} s "
+              f"({loops[0] / len(paths) * 1000:.0f} ms per input)")
+        screening = loops[0]
 
         rows = []
         for jobs in args.jobs:
@@ -115,6 +121,14 @@ def main() -> None:
                   f"batch ({inside:.1f} s); rerun with all up to date {rerun:.2f} s "
                   f"({rerun / len(paths) * 1000:.1f} ms per input)")
 
+        # the loop again after the batches; the faster of the two is the reference (less disturbed by load)
+        loops.append(screening_loop())
+        print(f"screen_file loop again: {loops[1]:.1f} s")
+        if loops[1] < screening:
+            screening = loops[1]
+            rows = [(jobs, wall, (wall * jobs - screening) / len(paths), attributed, inside, rerun)
+                    for jobs, wall, _, attributed, inside, rerun in rows]
+
         print()
         print(f"machine: {platform.machine()}, {os.cpu_count()} cores, Python {platform.python_version()}")
         print("| inputs x points | jobs | wall (s) | speed-up | screen_file time inside (s) "
@@ -125,7 +139,8 @@ def main() -> None:
         for jobs, wall, overhead, attributed, inside, rerun in rows:
             print(f"| {args.inputs} x {args.points:,} | {jobs} | {wall:.1f} | {base / wall:.2f} | {inside:.1f} | "
                   f"{attributed * 1000:.0f} | {overhead * 1000:.0f} | {rerun:.2f} |")
-        print(f"| (screen_file loop, one process) | - | {screening:.1f} | | | | | |")
+        print(f"| (screen_file loop, one process, faster of {loops[0]:.1f} and {loops[1]:.1f} s) | - | "
+              f"{screening:.1f} | | | | | |")
     finally:
         if args.keep:
             print(f"kept {work}")
