@@ -51,10 +51,10 @@ def test_parse_length_rejects_non_positive(text):
 
 def test_defaults_are_the_documented_ones():
     # Issue 2 / README option table: no-data -9999, -999, -99999; k 10; 999 permutations;
-    # coincident tolerance 0.5 m; review 3, suspect 4; FDR 0.05.
+    # coincident tolerance 0.5 m; review 3, suspect 3.5; FDR 0.05.
     c = ScreenConfig(value="level_m")
     assert set(c.sentinels) == {-9999.0, -999.0, -99999.0} == set(DEFAULT_SENTINELS)
-    assert (c.k, c.permutations, c.coincident_tolerance, c.review_z, c.suspect_z, c.fdr) == (10, 999, 0.5, 3.0, 4.0, 0.05)
+    assert (c.k, c.permutations, c.coincident_tolerance, c.review_z, c.suspect_z, c.fdr) == (10, 999, 0.5, 3.0, 3.5, 0.05)
     assert c.graph == "knn" and c.min_neighbours == 4
 
 
@@ -71,7 +71,7 @@ def test_defaults_are_the_documented_ones():
         ({"k": 5, "min_neighbours": 6}, r"min_neighbours \(6\) cannot exceed k \(5\)"),
         ({"permutations": 10}, r"permutations must be a whole number from 99 to 100000, got 10"),
         ({"fdr": 1.0}, r"fdr must be between 0 and 1, got 1\.0"),
-        ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(4\.0\)"),
+        ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(3\.5\)"),
         ({"coincident_tolerance": -1.0}, r"coincident_tolerance must be zero or positive, got -1\.0"),
         ({"lag_count": 0}, r"lag_count must be a whole number from 1 to 1000, got 0"),
         ({"lag_width": -5.0}, r"lag_width must be positive, got -5\.0"),

@@ -86,7 +86,7 @@ def screen_options(func):
         click.option("--permutations", type=click.IntRange(99, 100000), default=None, help="Permutations for local Moran's I / Gi* (default 999)."),
         click.option("--seed", type=int, default=None, help="Seed of all random draws (default fixed, runs repeat)."),
         click.option("--fdr", type=click.FloatRange(0, 1, min_open=True, max_open=True), default=None, help="False discovery rate (default 0.05)."),
-        click.option("--suspect-z", type=click.FloatRange(min=0, min_open=True), default=None, help="Standardized residual for 'suspect' (default 4)."),
+        click.option("--suspect-z", type=click.FloatRange(min=0, min_open=True), default=None, help="Standardized residual for 'suspect' (default 3.5)."),
         click.option("--review-z", type=click.FloatRange(min=0, min_open=True), default=None, help="Standardized residual for 'review' (default 3)."),
         click.option(
             "--detrend",

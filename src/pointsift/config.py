@@ -105,7 +105,10 @@ class ScreenConfig:
     fdr : float
         False discovery rate for the Benjamini-Hochberg adjustment.
     suspect_z, review_z : float
-        Standardized local residual beyond which a point is ``suspect`` / ``review``.
+        Standardized local residual beyond which a point is ``suspect`` /
+        ``review``. 3.5 follows the usual cut-off for robust (modified)
+        z-scores (Iglewicz and Hoaglin 1993, *How to Detect and Handle
+        Outliers*); 3 marks values worth a look.
     detrend : {"none", "auto", "surface1", "surface2", "polish"}
         Regional trend removed before the cluster statistics (and, unless
         ``"none"``, reported).
@@ -130,7 +133,7 @@ class ScreenConfig:
     permutations: int = 999
     seed: int = 20261202
     fdr: float = 0.05
-    suspect_z: float = 4.0
+    suspect_z: float = 3.5
     review_z: float = 3.0
     detrend: str = "auto"
     lag_count: int | None = None
