@@ -182,6 +182,7 @@ class PlaneFit:
     quadratic_leverage: np.ndarray
     curvature: np.ndarray
     quadratic_fit_scale: np.ndarray
+    alike_share: np.ndarray
 
 
 def robust_plane_predict(
@@ -274,12 +275,24 @@ def robust_plane_predict(
     qfit_scale = _MAD_TO_SD * _masked_median(np.abs(qresid), mask & (w > 0)) * np.sqrt(count / qdof)
     qfit_scale = np.where(enough, np.maximum(qfit_scale, floor), np.nan)
 
+    # neighbours whose values side with the point rather than with the
+    # prediction: carried to each neighbour along the local slope, the point's
+    # own value lands within a third of its deviation of the neighbour's value.
+    # Two or more such neighbours make a group (the wells of one pumping
+    # station, low together), which the bisquare weights would otherwise discount.
+    own = values - coef[:, 0]
+    carried = values[:, None] + coef[:, 1:2] * dx + coef[:, 2:3] * dy
+    alike = mask & (np.abs(v - carried) < np.abs(own)[:, None] / 3.0)
+    alike_count = alike.sum(axis=1)
+    alike_share = np.where(ok & (alike_count >= 2), alike_count / np.maximum(count, 1), 0.0)
+
     expected = np.where(ok, coef[:, 0], np.nan)
     fit_scale = np.where(ok, np.maximum(fit_scale, floor), np.nan)
     leverage = np.where(ok, leverage, np.nan)
     distance = np.where(ok, length, np.nan)
     return PlaneFit(
-        expected, fit_scale, leverage, np.where(ok, count, 0), distance, quadratic, qleverage, curvature, qfit_scale
+        expected, fit_scale, leverage, np.where(ok, count, 0), distance, quadratic, qleverage, curvature, qfit_scale,
+        alike_share,
     )
 
 
@@ -457,14 +470,16 @@ def local_residuals(
     fit, _, residual1, _, z1, (alt_z1, alt_res1), use_quad1, _ = _one_pass(
         xy, values, graph, min_neighbours, local_df, prior_df
     )
-    echo1 = neighbour_echo(z1, graph, echo_z)
+    echo1 = np.fmax(neighbour_echo(z1, graph, echo_z), fit.alike_share)
     coherent1, _ = _coherent(z1, residual1, alt_z1, alt_res1, use_quad1, fit.curvature, echo1, echo_share, curve_z)
     excluded = np.isfinite(z1) & (np.abs(z1) >= gross_z) & ~coherent1
     graph_used = graph.restrict(np.isfinite(values) & ~excluded) if excluded.any() else graph
     fit, expected, residual, scale, z, curved_z, use_quad, model = _one_pass(
         xy, values, graph_used, min_neighbours, local_df, prior_df
     )
-    echo = neighbour_echo(z, graph_used, echo_z)
+    # echoed: neighbours deviate alike in their own residuals, or have values
+    # like the point's (a group the robust fit set aside)
+    echo = np.fmax(neighbour_echo(z, graph_used, echo_z), fit.alike_share)
     alternative_z, alternative_residual = curved_z
     coherent, explained = _coherent(
         z, residual, alternative_z, alternative_residual, use_quad, fit.curvature, echo, echo_share, curve_z
