@@ -146,21 +146,39 @@ def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_in
     from the config when it has them (``lag_count``, ``lag_width``).
     """
     from .methods.lagpairs import screen_lag_pairs
-    from .methods.variogram import analyse_variogram
+    from .methods.variogram import analyse_variogram, expected_difference_sd, neighbourhood_from_fit
 
     values = np.where(prepared.usable, detrended, np.nan)
     basis = "values" if trend_info.get("method", "none") == "none" else f"residuals from the trend ({trend_info['method']})"
-    lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=config.seed)
-    info = {"lag_pairs": {"values": basis, **lag_screen.record}}
     variogram = None
+    variogram_info = {"values": basis}
     try:
         variogram = analyse_variogram(
             prepared.xy, values, lag_count=getattr(config, "lag_count", None),
             lag_width=getattr(config, "lag_width", None), seed=config.seed,
         )
-        info["variogram"] = {"values": basis, **variogram.run_info()}
+        variogram_info.update(variogram.run_info())
     except InputError as exc:
-        info["variogram"] = {"values": basis, "note": f"no variogram: {exc}"}
+        variogram_info["note"] = f"no variogram: {exc}"
+    # The expected difference between two records h apart: from the fitted
+    # model when it is trustworthy (sqrt(2 gamma(h))), so pairs far apart are
+    # allowed to differ more; otherwise the robust default (each lag class's
+    # own spread) and the run record says why.
+    hint = neighbourhood_from_fit(variogram.fit if variogram is not None else None)
+    if hint.distance is not None:
+        fit = hint.fit
+        lag_screen = screen_lag_pairs(
+            prepared.xy, values, ids=prepared.ids, seed=config.seed,
+            distance_scale=lambda h: expected_difference_sd(fit, h),
+        )
+        scale_note = "pair differences divided by the variogram model's sqrt(2 gamma(h))"
+    else:
+        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=config.seed)
+        scale_note = f"each lag class's own robust spread ({hint.reason})"
+    info = {
+        "lag_pairs": {"values": basis, "difference_scale": scale_note, **lag_screen.record},
+        "variogram": variogram_info,
+    }
     return lag_screen, variogram, info
 
 
