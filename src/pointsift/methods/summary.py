@@ -47,6 +47,7 @@ __all__ = [
     "summary_shift",
     "histogram_bin_width",
     "plot_histogram",
+    "histogram_edges",
     "SIGMA_FROM_IQR",
     "SIGMA_FROM_MAD",
 ]
@@ -313,6 +314,42 @@ def histogram_bin_width(values, bin_width: float | None = None) -> float:
     return 1.0
 
 
+def histogram_edges(values, bin_width: float | None = None, max_bins: int = 200):
+    """Bin edges of the histogram :func:`plot_histogram` draws.
+
+    Parameters
+    ----------
+    values : array_like of float
+        The values (non-finite ones are ignored; at least one is needed).
+    bin_width : float, optional
+        Bin width; Freedman-Diaconis (see :func:`histogram_bin_width`) when omitted.
+    max_bins : int
+        Bins are widened so there are at most this many.
+
+    Returns
+    -------
+    edges : ndarray
+        Bin edges, the last one at least the largest value.
+    width : float
+        The bin width used.
+    rule : str
+        How the width was chosen, in words.
+    """
+    x, _ = _finite(values)
+    rule = "given" if bin_width is not None else "Freedman-Diaconis"
+    width = histogram_bin_width(x, bin_width)
+    lo, hi = float(x.min()), float(x.max())
+    n_bins = max(1, int(math.ceil((hi - lo) / width)) if hi > lo else 1)
+    if n_bins > max_bins:
+        n_bins = max_bins
+        width = (hi - lo) / n_bins
+        rule += f", widened to {max_bins} bins"
+    start = lo if hi > lo else lo - width / 2
+    edges = start + width * np.arange(n_bins + 1)
+    edges[-1] = max(edges[-1], hi)
+    return edges, width, rule
+
+
 def plot_histogram(values, bin_width: float | None = None, *, label: str = "value", max_bins: int = 200):
     """Histogram figure of the values with the bin width rule in the title.
 
@@ -338,17 +375,7 @@ def plot_histogram(values, bin_width: float | None = None, *, label: str = "valu
     from matplotlib.figure import Figure
 
     x, _ = _finite(values)
-    rule = "given" if bin_width is not None else "Freedman-Diaconis"
-    width = histogram_bin_width(x, bin_width)
-    lo, hi = float(x.min()), float(x.max())
-    n_bins = max(1, int(math.ceil((hi - lo) / width)) if hi > lo else 1)
-    if n_bins > max_bins:
-        n_bins = max_bins
-        width = (hi - lo) / n_bins
-        rule += f", widened to {max_bins} bins"
-    start = lo if hi > lo else lo - width / 2
-    edges = start + width * np.arange(n_bins + 1)
-    edges[-1] = max(edges[-1], hi)
+    edges, width, rule = histogram_edges(x, bin_width, max_bins)
     fig = Figure(figsize=(6.4, 4.0), layout="constrained")
     ax = fig.add_subplot()
     ax.hist(x, bins=edges, color="#4c72b0", edgecolor="white")

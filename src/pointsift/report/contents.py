@@ -96,23 +96,15 @@ def _section(summary: dict, key: str, title: str, available: bool, note: str = "
 def _histogram_record(fig, values, bin_width: float | None = None, max_bins: int = 200) -> dict:
     """Bin edges and counts of the histogram ``fig`` shows.
 
-    The edges follow :func:`pointsift.methods.summary.plot_histogram` (its
-    rule and its cap of ``max_bins`` bins); reading them back from the bars
-    would lose the last digits, since matplotlib stores bar centres.
+    The edges are :func:`pointsift.methods.summary.histogram_edges`, the same
+    that :func:`~pointsift.methods.summary.plot_histogram` draws; reading them
+    back from the bars would lose the last digits.
     """
-    from ..methods.summary import histogram_bin_width
+    from ..methods.summary import histogram_edges
 
     x = np.asarray(values, dtype=float)
     x = x[np.isfinite(x)]
-    width = histogram_bin_width(x, bin_width)
-    lo, hi = float(x.min()), float(x.max())
-    n_bins = max(1, int(math.ceil((hi - lo) / width)) if hi > lo else 1)
-    if n_bins > max_bins:
-        n_bins = max_bins
-        width = (hi - lo) / n_bins
-    start = lo if hi > lo else lo - width / 2
-    edges = start + width * np.arange(n_bins + 1)
-    edges[-1] = max(edges[-1], hi)
+    edges, width, _ = histogram_edges(x, bin_width, max_bins)
     counts, _ = np.histogram(x, bins=edges)
     drawn = [int(round(p.get_height())) for p in fig.axes[0].patches]
     if drawn != counts.tolist():  # the figure's rule changed: say so rather than report other numbers
