@@ -328,7 +328,6 @@ def _param(value):
 def _map_section(summary: dict, figures: dict) -> str:
     m = summary["map"]
     parts = []
-    drawn = m.get("drawn", {})
     shaded = m.get("shaded", {})
     if not m.get("screened"):
         parts.append("The layer was described, not screened: points with a usable value are dots, "
