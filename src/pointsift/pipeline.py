@@ -6,6 +6,7 @@ the batch runner and the Python API all call :func:`screen_frame`.
 
 from __future__ import annotations
 
+import functools
 import logging
 import platform
 import time
@@ -110,6 +111,12 @@ def automatic_max_distance(xy: np.ndarray) -> float:
 
 
 def _library_versions() -> dict:
+    """Versions of pointsift and the libraries it stands on (read once per process)."""
+    return dict(_installed_versions())
+
+
+@functools.lru_cache(maxsize=1)
+def _installed_versions() -> dict:
     # read installed versions without importing esda/libpysal (slow imports)
     from importlib.metadata import PackageNotFoundError, version
 
