@@ -425,3 +425,43 @@ def test_pairs_in_reach_of_a_large_set_is_exact_when_within_budget():
     tree = cKDTree(xy)
     assert got.pairs_in_reach == (tree.count_neighbors(tree, 40.0) - 25_000) // 2 == got.size
     assert not got.record["pairs_in_reach_estimated"] and not got.sampled
+
+
+# --------------------------------------------------------------------------- issue 10 reproductions
+
+def test_ids_are_object_strings_so_memory_does_not_grow_with_the_longest_id():
+    # Issue 10, item 5: one very long id made a fixed-width numpy string array of
+    # n x (longest id) characters. tracemalloc (standard library) measures the peak.
+    import tracemalloc
+
+    rng = np.random.default_rng(5)
+    xy = rng.uniform(0, 5000, (400, 2))
+    values = 100 + 0.01 * xy[:, 0] + rng.normal(0, 0.2, 400)
+    ids = np.array([f"W{i}" for i in range(400)], dtype=object)
+    ids[7] = "X" * 100_000  # fixed-width: 400 x 100,000 x 4 bytes = 160 MB
+    tracemalloc.start()
+    try:
+        screen = screen_lag_pairs(xy, values, ids=ids, first_lag=300.0, lag_count=6)
+        layer = screen.pair_table(flagged_only=False)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert screen.ids.dtype == object
+    assert peak < 40e6, f"peak {peak / 1e6:.0f} MB"
+    assert set(layer["tail_id"]) <= set(ids)
+
+
+def test_lag_tolerance_sources_cite_the_textbook_alone():
+    # Issue 10, item 20: the lag and angular tolerances are cited from one
+    # textbook (Isaaks and Srivastava 1989), in the module and in docs/methods.md.
+    import pathlib
+    import re
+
+    import pointsift.methods.lagpairs as module
+
+    bullet = module.__doc__.split("h-scatterplots, lag and angular tolerances", 1)[1].split("\n- ", 1)[0]
+    assert re.findall(r"\((1[89]\d\d|20\d\d)\)", bullet) == ["1989"]
+    methods = pathlib.Path(__file__).resolve().parents[1] / "docs" / "methods.md"
+    section = methods.read_text(encoding="utf-8").split("### Pairs, lag classes and directions", 1)[1].split("* **Search.**", 1)[0]
+    cited = re.findall(r"\(([^()]*\d{4}[^()]*)\)", section)
+    assert cited and all(re.search(r"(^|; )Isaaks and Srivastava 1989, ch\. \d$", c.replace("\n", " ")) for c in cited), cited

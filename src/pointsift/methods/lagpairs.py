@@ -11,8 +11,7 @@ Sources
 -------
 - h-scatterplots, lag and angular tolerances for irregular data: Isaaks, E. H.
   and Srivastava, R. M. (1989), *An Introduction to Applied Geostatistics*,
-  Oxford University Press, chapters 4 and 7 (from memory); Deutsch, C. V. and
-  Journel, A. G. (1998), *GSLIB*, 2nd ed., section III.1 (from memory).
+  Oxford University Press, chapters 4 and 7 (from memory).
 - Robust scale: the median absolute deviation with the consistency factor
   1.4826, falling back to the interquartile range over 1.349 (Rousseeuw, P. J.
   and Croux, C. (1993), *JASA* 88, 1273-1283).
@@ -513,8 +512,8 @@ class LagPairScreen:
         tail = self.pairs.tail[sel]
         head = self.pairs.head[sel]
         culprit = self.culprit[sel]
-        ids = self.ids if self.ids is not None else np.arange(self.values.size).astype(str)
-        culprit_id = np.where(culprit >= 0, ids[np.where(culprit >= 0, culprit, 0)], "")
+        ids = self.ids if self.ids is not None else np.array([str(r) for r in range(self.values.size)], dtype=object)
+        culprit_id = np.array([ids[c] if c >= 0 else "" for c in culprit], dtype=object)
         return pd.DataFrame({
             "tail_row": tail,
             "head_row": head,
@@ -684,7 +683,8 @@ def screen_lag_pairs(
     if values.shape != (n,):
         raise InputError(f"values must have one entry per point ({n}), got shape {values.shape}.")
     if ids is not None:
-        ids = np.asarray(ids).astype(str)
+        # object strings: a fixed-width numpy string array costs n x the longest id
+        ids = np.array([str(v) for v in np.asarray(ids, dtype=object).ravel()], dtype=object).reshape(np.shape(ids))
         if ids.shape != (n,):
             raise InputError(f"ids must have one entry per point ({n}), got shape {ids.shape}.")
     directions = tuple(float(d) % 180.0 for d in directions)
