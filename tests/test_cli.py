@@ -18,6 +18,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyogrio
@@ -260,11 +261,10 @@ def _multi_layer(tmp_path):
 
 
 def _non_points(tmp_path):
+    # only lines: nothing to screen (a few lines among points are unscreened rows instead)
     wells = build_wells(30, seed=3)
-    geometry = wells.geometry.copy()
-    geometry.iloc[[0, 1, 2]] = [shapely.LineString([(0, 0), (1, 1)])] * 3
-    geometry.iloc[4] = shapely.box(0, 0, 1, 1)
-    return write_points(wells.set_geometry(geometry), tmp_path / "mixed.gpkg")
+    geometry = gpd.GeoSeries([shapely.LineString([(0, 0), (1, i)]) for i in range(30)], crs=wells.crs)
+    return write_points(wells.set_geometry(geometry), tmp_path / "lines.gpkg")
 
 
 def _swapped_csv(tmp_path):
@@ -290,7 +290,7 @@ def _collision(tmp_path):
         (_multi_layer, [], r"holds 2 layers: spring, autumn\. Choose one with --layer NAME"),
         (_multi_layer, ["--layer", "winter"], r"has no layer 'winter'\. Layers present: spring, autumn"),
         (lambda p: write_points(build_wells(30), p / "w.gpkg"), ["--value", "level"], r"has no column 'level'\. Numeric columns present: level_m, depth_m"),
-        (_non_points, [], r"not points \(3 LineString, 1 Polygon\)"),
+        (_non_points, [], r"has a usable location \(first reason: feature is a line \(LineString\), not a point; convert it"),
         (lambda p: write_points(build_wells(30), p / "w.csv"), [], r"has no CRS.*Pass --crs EPSG:XXXX"),
         (_shapefile_without_prj, [], r"has no CRS.*Pass --crs EPSG:XXXX"),
         (lambda p: write_points(build_wells(30), p / "w.gpkg"), ["--crs", "EPSG:4326"], r"declares EPSG:32633 but --crs says EPSG:4326"),

@@ -108,3 +108,11 @@ def test_agreeing_twins_are_ok_and_say_so():
     out = screen_frame(wells, ScreenConfig(value="level_m", id="well_id", permutations=99)).frame
     assert out.loc[250, "screen_status"] == "ok" and out.loc[20, "screen_status"] == "ok"
     assert "a coincident record (W0020) agrees" in out.loc[250, "screen_reasons"]
+
+
+def test_agreeing_records_name_each_other_not_themselves():
+    # Issue 10, item 18: "a coincident record (W7) agrees" was the reason of W7 itself.
+    out = _judge([5.0, 5.0, 5.0, 8.0], [0, 0, 0, -1], [0.1, 0.2, 0.3, 0.0], value_tolerance=1.0)
+    assert out["role"].tolist()[:3] == ["agrees"] * 3
+    partners = out["partner"].tolist()[:3]
+    assert all(p != row and p in (0, 1, 2) for row, p in enumerate(partners)), partners

@@ -227,7 +227,8 @@ def test_failure_midway_leaves_no_partial_output(tmp_path, monkeypatch, existing
         return real(frame, path, *args, **kwargs)
 
     monkeypatch.setattr(pyogrio, "write_dataframe", fail_on_second_layer)
-    with pytest.raises(RuntimeError, match="disk full"):
+    # a full disk is an output problem (OutputError, exit 1), not an internal error
+    with pytest.raises(OutputError, match=r"Cannot write .*out\.gpkg' \(disk full \(simulated\)\)\. Free disk space"):
         psio.write_geopackage(out, _layers(), overwrite=True)
     assert calls == ["screened", "run_info"]  # the first layer really was written
     assert leftovers(tmp_path) == []
@@ -242,3 +243,130 @@ def test_run_info_table_is_key_value_text():
     table = psio.run_info_table({"a": "text", "b": {"y": 1, "x": [1.5, None]}, "c": 3})
     assert table.columns.tolist() == ["key", "value"]
     assert table["value"].tolist() == ["text", '{"x": [1.5, null], "y": 1}', "3"]
+
+
+# --- issue 10 reproductions ----------------------------------------------------------------
+
+
+def test_real_disk_full_is_an_output_problem(tmp_path):
+    # Issue 10, item 8: "database or disk is full" was an internal error. A real
+    # write limit (RLIMIT_FSIZE, POSIX setrlimit) makes the write library fail.
+    import subprocess
+    import sys
+
+    source = write_points(build_wells(3000, seed=9), tmp_path / "big.gpkg")
+    script = (
+        "import resource, signal, sys\n"
+        "signal.signal(signal.SIGXFSZ, signal.SIG_IGN)\n"
+        "resource.setrlimit(resource.RLIMIT_FSIZE, (150_000, 150_000))\n"
+        "import geopandas as gpd\n"
+        "from pointsift import io\n"
+        "from pointsift.errors import OutputError\n"
+        f"frame = gpd.read_file({str(source)!r})\n"
+        "try:\n"
+        f"    io.write_geopackage({str(tmp_path / 'out.gpkg')!r}, {{'screened': frame}})\n"
+        "except OutputError as exc:\n"
+        "    print('OUTPUT-ERROR', exc); sys.exit(0)\n"
+        "sys.exit(5)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stdout + done.stderr
+    assert "Free disk space or choose another --out folder" in done.stdout
+    assert leftovers(tmp_path) == [] and not (tmp_path / "out.gpkg").exists()
+
+
+def test_second_run_creating_the_same_output_fails(tmp_path, monkeypatch):
+    # Issue 10, item 11: two runs creating one new output both succeeded. The
+    # other run finishes first, between this run's check and its final step.
+    out = tmp_path / "out.gpkg"
+    real = psio._write_layer
+
+    def other_run_finishes_first(*args, **kwargs):
+        if not out.exists():
+            out.write_bytes(b"the other run's result")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(psio, "_write_layer", other_run_finishes_first)
+    with pytest.raises(OutputError, match=r"exists\. Pass --overwrite to replace it"):
+        psio.write_geopackage(out, _layers())
+    assert out.read_bytes() == b"the other run's result"
+    assert leftovers(tmp_path) == []
+
+
+def test_temporary_files_are_not_inputs_and_stale_ones_are_removed(tmp_path):
+    # Issue 10, item 6: a killed run's ".out.XXXX.partial.gpkg" was taken as an
+    # input by a later folder scan and never removed.
+    dead = tmp_path / f".out.gpkg.999999999.abcd{psio.PARTIAL_SUFFIX}"
+    dead.write_bytes(b"half a file")
+    alive = tmp_path / f".out.gpkg.{os.getpid()}.efgh{psio.PARTIAL_SUFFIX}"
+    alive.write_bytes(b"being written")
+    assert not any(p.suffix.lower() in {".gpkg", ".shp", ".csv", ".parquet"} for p in (dead, alive))
+    psio.write_geopackage(tmp_path / "out.gpkg", _layers())
+    assert not dead.exists()  # its process (pid 999999999) is gone
+    assert alive.exists()  # this process is alive: not removed
+
+
+def test_layer_description_holds_the_given_text(tmp_path):
+    out = psio.write_geopackage(tmp_path / "out.gpkg", _layers(), descriptions={"screened": "Screening aids, not determinations."})
+    with sqlite3.connect(out) as db:  # Reference: the GeoPackage standard's gpkg_contents table, read by sqlite3
+        text = db.execute("SELECT description FROM gpkg_contents WHERE table_name = 'screened'").fetchone()[0]
+    assert text == "Screening aids, not determinations."
+
+
+def test_csv_decimal_comma_coordinates_and_bad_cells_are_named(tmp_path):
+    # Issue 10, item 7: "-21,046743" gave "no location (no geometry)".
+    path = tmp_path / "comma.csv"
+    path.write_text('id;lon;lat;level\n'.replace(";", ","), encoding="utf-8")
+    with open(path, "a", encoding="utf-8") as handle:
+        handle.write('a,"-47,912301","-21,046743",3.5\nb,"-47,9","-21,1",4\nc,"-47,95",,5\n')
+    gdf, _ = psio.read_points(path)
+    assert gdf.geometry.x.iloc[0] == pytest.approx(-47.912301) and gdf.geometry.y.iloc[0] == pytest.approx(-21.046743)
+    assert gdf.attrs[psio.LOCATION_REASONS].tolist() == ["", "", "no location (one coordinate is blank)"]
+    thousands = tmp_path / "thousands.csv"
+    thousands.write_text('id,x,y,level\na,"512,345.5","4,100,200",1\nb,"-21,046743",abc,2\n', encoding="utf-8")
+    gdf, _ = psio.read_points(thousands)
+    assert gdf.attrs[psio.LOCATION_REASONS].tolist() == ["", "coordinate '-21,046743' is not a number"]
+
+
+def test_duplicate_csv_column_names_are_refused(tmp_path):
+    # Issue 10, item 14: pandas renamed the second "level_m" to "level_m.1" silently.
+    path = tmp_path / "dup.csv"
+    path.write_text("id,x,y,level_m,level_m\na,1,2,3,4\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"column name\(s\) used more than once: 'level_m'\. Rename the repeated columns"):
+        psio.read_points(path)
+
+
+def test_csv_comment_lines_are_skipped_and_said(tmp_path):
+    # Issue 10, item 18: the first "#" line was taken as the header.
+    path = tmp_path / "commented.csv"
+    path.write_text("# exported 2026-04-01\n# units: metres\nid,x,y,level\na,1,2,3.5\n", encoding="utf-8")
+    gdf, _ = psio.read_points(path)
+    assert list(gdf.columns[:4]) == ["id", "x", "y", "level"] and len(gdf) == 1
+    assert gdf.attrs[psio.READ_NOTES] == ("Skipped 2 comment lines starting with '#' at the top of commented.csv.",)
+
+
+def test_swapped_coordinate_option_names_are_warned(tmp_path):
+    # Issue 10, item 15: --x lat --y lon was accepted silently.
+    path = tmp_path / "ll.csv"
+    path.write_text("id,lon,lat,level\na,15.1,47.2,3.5\n", encoding="utf-8")
+    gdf, _ = psio.read_points(path, x="lat", y="lon")
+    assert any("look swapped" in note for note in gdf.attrs[psio.READ_NOTES])
+
+
+def test_plain_parquet_and_library_text_in_messages(tmp_path):
+    # Issue 10, item 18: "Use pandas.read_parquet ..." reached the user; a plain
+    # Parquet table with coordinate columns is now read like a CSV.
+    path = tmp_path / "plain.parquet"
+    pd.DataFrame({"id": ["a", "b"], "x": [1.0, 2.0], "y": [3.0, 4.0], "level": [1.0, 2.0]}).to_parquet(path)
+    gdf, source = psio.read_points(path)
+    assert source.driver == "Parquet" and gdf.geometry.x.tolist() == [1.0, 2.0]
+    damaged = tmp_path / "damaged.gpkg"
+    good = write_points(build_wells(200, seed=3), tmp_path / "good.gpkg")
+    data = good.read_bytes()
+    damaged.write_bytes(data[:20000] + b"\xff" * 20000 + data[40000:])  # corrupt pages in the middle
+    with pytest.raises(InputError) as caught:
+        psio.read_points(damaged)
+    message = str(caught.value)
+    assert "SELECT" not in message and "prefix the file path" not in message and "Use pandas" not in message
+    assert "looks damaged (database disk image is malformed)" in message  # SQLite's own words for it
+    assert "Restore the file from a backup or export the layer again" in message

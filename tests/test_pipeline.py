@@ -229,3 +229,32 @@ def test_lag_pairs_layer_variogram_table_and_reasons(tmp_path):
     assert len(back) == len(result.tables["variogram"])
     lines = pyogrio.read_dataframe(out, layer="lag_pairs")
     np.testing.assert_allclose(shapely.length(lines.geometry.values), lines["separation"], rtol=1e-9)
+
+
+# --- issue 10 reproductions ---------------------------------------------------------------
+
+
+def test_output_carries_the_crs_the_run_used(tmp_path):
+    # Issue 10, item 10: a layer without a CRS screened with --crs was written
+    # with an undefined SRS (srs_id 99999).
+    import sqlite3
+
+    from pointsift.io import write_geopackage
+
+    wells = build_wells(120, seed=12, crs=None)
+    result = screen_frame(wells, ScreenConfig(value="level_m", id="well_id", crs="EPSG:32633", **FAST))
+    assert result.frame.crs.to_epsg() == 32633
+    out = write_geopackage(tmp_path / "out.gpkg", {"screened": result.frame})
+    with sqlite3.connect(out) as db:  # Reference: gpkg_geometry_columns, read by sqlite3
+        srs = db.execute("SELECT srs_id FROM gpkg_geometry_columns WHERE table_name = 'screened'").fetchone()[0]
+    assert srs == 32633
+
+
+def test_text_columns_are_null_where_there_is_nothing_to_say():
+    # Issue 10, item 18: quadrant and role were "" on unscreened rows.
+    wells = build_wells(120, seed=13)
+    wells.loc[5, "level_m"] = np.nan
+    out = screen_frame(wells, ScreenConfig(value="level_m", id="well_id", **FAST)).frame
+    assert out.loc[5, "screen_status"] == "unscreened"
+    assert pd.isna(out.loc[5, "local_moran_quadrant"]) and pd.isna(out.loc[5, "coincident_role"])  # written as NULL
+    assert not (out["local_moran_quadrant"] == "").any() and not (out["coincident_role"] == "").any()

@@ -16,7 +16,7 @@ from pyproj.database import query_utm_crs_info
 from scipy.spatial import cKDTree
 
 from pointsift.config import ScreenConfig
-from pointsift.errors import CRSError, InputError
+from pointsift.errors import ConfigError, CRSError, InputError
 from pointsift.prepare import choose_work_crs, parse_values, prepare
 
 CONFIG = ScreenConfig(value="level_m", id="well_id")
@@ -35,9 +35,10 @@ def _prepare(gdf, **changes):
         ("12.5", 12.5, ""),
         (" 1,234.5 ", 1234.5, ""),  # thousands separator and blanks, common practice in exported sheets
         ("-1,234,567.25", -1234567.25, ""),
-        # a decimal comma is not a thousands separator: never read 213,17 as 21317
-        ("213,17", np.nan, "value '213,17' is not a number (a decimal comma? write '213.17')"),
-        ("12,5", np.nan, "value '12,5' is not a number (a decimal comma? write '12.5')"),
+        # a decimal comma is not a thousands separator: never read 213,17 as 21317; the
+        # column's only comma cell has one comma and no dot, so the column uses decimal commas
+        ("213,17", 213.17, ""),
+        ("12,5", 12.5, ""),
         ("n/a", np.nan, "value 'n/a' is not a number"),
         ("dry", np.nan, "value 'dry' is not a number"),
         ("", np.nan, "no value (blank)"),
@@ -127,7 +128,8 @@ def test_duplicate_ids_are_noted_and_made_unique():
 # --- geometry ----------------------------------------------------------------------------
 
 
-def test_non_point_geometry_is_refused_with_counts_by_type():
+def test_non_point_features_are_unscreened_rows_and_the_rest_is_screened():
+    # Issue 10, item 17: one line in a point layer used to reject the whole layer.
     wells = build_wells(12)
     geometry = wells.geometry.copy()
     geometry.iloc[0] = shapely.LineString([(0, 0), (1, 1)])
@@ -137,8 +139,13 @@ def test_non_point_geometry_is_refused_with_counts_by_type():
     # Reference for the counts: shapely's own type names of the features.
     expected = pd.Series(shapely.get_type_id(geometry.array)).value_counts()
     assert expected[1] == 2 and expected[3] == 1
-    with pytest.raises(InputError, match=r"geometries that are not points \(2 LineString, 1 Polygon\)\. .*convert the features to points"):
-        _prepare(wells)
+    p = _prepare(wells)
+    assert p.n == 12 and p.usable.sum() == 9
+    assert p.unscreened_reason[0] == (
+        "feature is a line (LineString), not a point; convert it to a point (for example its centroid) to screen it"
+    )
+    assert p.unscreened_reason[5].startswith("feature is a polygon, not a point")
+    assert (p.unscreened_reason[[2, 3, 4, 6, 7, 8, 9, 10, 11]] == "").all()
 
 
 def test_null_and_empty_geometry_are_unscreened():
@@ -187,7 +194,8 @@ def test_crs_option_contradicting_the_layer():
 
 
 def test_unknown_crs_text():
-    with pytest.raises(CRSError, match=r"--crs 'EPSG:999999' is not a CRS pyproj knows"):
+    # Issue 10, item 12: a mistyped CRS is a usage problem (ConfigError, exit 2)
+    with pytest.raises(ConfigError, match=r"--crs 'EPSG:999999' is not a CRS pyproj knows"):
         _prepare(build_wells(10, crs=None), crs="EPSG:999999")
 
 
@@ -298,7 +306,7 @@ def test_automatic_work_crs_distances_match_geodesics(lons, lat_range):
 
 def test_work_crs_option_must_be_metric_projected():
     wells = to_lonlat(build_wells(20))
-    with pytest.raises(CRSError, match=r"--work-crs 'EPSG:4326' must be a projected CRS in metres"):
+    with pytest.raises(ConfigError, match=r"--work-crs 'EPSG:4326' must be a projected CRS in metres"):
         _prepare(wells, work_crs="EPSG:4326")
     p = _prepare(wells, work_crs="EPSG:3035")
     assert p.work_crs.equals(CRS.from_epsg(3035))
@@ -324,3 +332,129 @@ def test_coincident_records_get_a_shared_group_label():
     assert p.coincident[3] == p.coincident[10] >= 0
     assert (p.coincident >= 0).sum() == 2
     assert (_prepare(wells, coincident_tolerance=0.1).coincident == -1).all()
+
+
+# --- issue 10 reproductions -------------------------------------------------------------
+
+
+def _lonlat_layer(lon0, lat0, n=200, seed=4, span=0.3):
+    rng = np.random.default_rng(seed)
+    lon, lat = lon0 + rng.uniform(0, span, n), lat0 + rng.uniform(0, span, n)
+    return gpd.GeoDataFrame(
+        {"well_id": [f"M{i}" for i in range(n)], "level_m": rng.normal(100, 1, n)},
+        geometry=gpd.points_from_xy(lon, lat), crs="EPSG:4326",
+    )
+
+
+@pytest.mark.parametrize("lat0", [-32.5, 66.0])
+def test_web_mercator_input_is_not_used_for_distances(lat0):
+    # Issue 10, item 3: EPSG:3857 "metres" are x1.19 at 32.5 S and x2.45 at 66 N.
+    wells = _lonlat_layer(150.0 if lat0 < 0 else 20.0, lat0).to_crs("EPSG:3857")
+    p = _prepare(wells)
+    assert not p.work_crs.equals(CRS.from_epsg(3857))
+    assert any("off by up to" in note and "0.5 %" in note for note in p.notes)
+    # Reference: pyproj.Geod (WGS 84 ellipsoid) distances between the same points.
+    lonlat = wells.to_crs("EPSG:4326")
+    lon, lat = lonlat.geometry.x.to_numpy(), lonlat.geometry.y.to_numpy()
+    _, _, geodesic = Geod(ellps="WGS84").inv(lon[:-1], lat[:-1], lon[1:], lat[1:])
+    planar = np.hypot(*np.diff(p.xy, axis=0).T)
+    np.testing.assert_allclose(planar, geodesic, rtol=0.005)
+
+
+def test_projected_crs_with_small_scale_error_is_kept():
+    # a UTM zone inside its band: pyproj's scale factors stay within 0.1 % of 1
+    wells = build_wells(50)
+    p = _prepare(wells)
+    assert p.work_crs.equals(wells.crs)
+    from pointsift.prepare import SCALE_TOLERANCE, scale_error
+
+    error = scale_error(CRS(wells.crs), wells.geometry.x.to_numpy(), wells.geometry.y.to_numpy())
+    assert 0 < error < 0.001 < SCALE_TOLERANCE
+
+
+def test_local_engineering_crs_in_metres_is_accepted_as_metric():
+    # Issue 10, item 3: a local engineering CRS gave "Internal error: ProjError".
+    site = CRS.from_wkt(
+        'ENGCRS["Site grid",EDATUM["Site datum"],CS[Cartesian,2],'
+        'AXIS["easting (x)",east,ORDER[1],LENGTHUNIT["metre",1]],AXIS["northing (y)",north,ORDER[2],LENGTHUNIT["metre",1]]]'
+    )
+    wells = build_wells(40).set_crs(site, allow_override=True)
+    p = _prepare(wells)
+    assert p.work_crs.equals(site)
+    np.testing.assert_array_equal(p.xy[:, 0], wells.geometry.x.to_numpy())
+    assert any("local engineering CRS 'Site grid'" in note for note in p.notes)
+    feet = CRS.from_wkt(str(site.to_wkt()).replace('LENGTHUNIT["metre",1]', 'LENGTHUNIT["foot",0.3048]'))
+    with pytest.raises(CRSError, match=r"local engineering CRS 'Site grid' in foot.*Convert the coordinates to metres"):
+        _prepare(wells.set_crs(feet, allow_override=True))
+
+
+@pytest.mark.parametrize(
+    "cells, thousands, expected",
+    [
+        (["319,910", "318,5", "320,125"], None, [319.91, 318.5, 320.125]),  # decimal commas, 2 and 3 decimals
+        (["319,910", "318,50", "320"], ",", [319910.0, np.nan, 320.0]),  # the user says commas group thousands
+        (["319,910", "1,234.5", "7"], None, [319910.0, 1234.5, 7.0]),  # a dot beside a comma: thousands
+    ],
+)
+def test_decimal_comma_is_decided_once_per_column(cells, thousands, expected):
+    # Issue 10, item 4: "319,910" was read as 319910 while "318,5" was unscreened.
+    values, reasons = parse_values(pd.Series(cells, dtype=object, name="level_m"), (), thousands=thousands)
+    np.testing.assert_allclose(values, expected, rtol=0, atol=1e-12)
+    assert (reasons[np.isfinite(expected)] == "").all()
+
+
+def test_empty_layer_names_the_real_problem():
+    # Issue 10, item 7: an empty layer was told to check --crs.
+    empty = build_wells(5).iloc[:0]
+    with pytest.raises(InputError, match=r"has no rows \(an empty layer, or a CSV with a header and no data\)"):
+        _prepare(empty)
+
+
+def test_no_usable_location_names_the_first_reason_not_the_crs():
+    wells = build_wells(5, crs="EPSG:4326")
+    wells = wells.set_geometry(gpd.GeoSeries([None] * 5, crs="EPSG:4326"))
+    with pytest.raises(InputError, match=r"No row of the layer has a usable location \(first reason: no location \(no geometry\)\)"):
+        _prepare(wells)
+
+
+def test_points_far_outside_the_crs_area_of_use_are_reported():
+    # Issue 10, item 15: easting and northing swapped in a UTM layer (EPSG:32633,
+    # area of use 12-18 E per pyproj) put the points thousands of km away.
+    wells = build_wells(60)
+    swapped = wells.set_geometry(gpd.points_from_xy(wells.geometry.y, wells.geometry.x, crs=wells.crs))
+    p = _prepare(swapped)
+    assert any("60 of 60 points" in note and "far outside the area" in note for note in p.notes)
+    # a few points far away: unscreened with the reason, the rest screened
+    xs, ys = wells.geometry.x.to_numpy().copy(), wells.geometry.y.to_numpy().copy()
+    xs[4], ys[4] = ys[4], xs[4]
+    p = _prepare(wells.set_geometry(gpd.points_from_xy(xs, ys, crs=wells.crs)))
+    assert "lies far outside the area WGS 84 / UTM zone 33N is meant for" in p.unscreened_reason[4]
+    assert p.usable.sum() == 59
+
+
+def test_degrees_in_a_projected_layer_are_named():
+    # Issue 10, item 16: degrees stored in a UTM layer gave "no neighbour within 0 m".
+    degrees = to_lonlat(build_wells(40))
+    wrong = degrees.set_crs("EPSG:32633", allow_override=True)
+    with pytest.raises(CRSError, match=r"look like longitude/latitude in degrees .* set the layer's CRS to EPSG:4326"):
+        _prepare(wrong)
+
+
+def test_impossible_projected_coordinates_are_described():
+    # Issue 10, item 16: 1e10-1e300 ft were moved to the South Pole and called isolated.
+    rng = np.random.default_rng(8)
+    x, y = 6.0e6 + rng.uniform(0, 3e4, 30), 2.0e6 + rng.uniform(0, 3e4, 30)  # EPSG:2227 (US ft) around 38 N
+    x[2], y[3] = 1e10, 1e300
+    wells = gpd.GeoDataFrame({"well_id": [f"F{i}" for i in range(30)], "level_m": rng.normal(10, 1, 30)},
+                             geometry=gpd.points_from_xy(x, y), crs="EPSG:2227")
+    p = _prepare(wells)
+    assert p.unscreened_reason[2].startswith("coordinates (1e+10, ") and "impossible" in p.unscreened_reason[2]
+    assert "farther from its origin than any place on Earth" in p.unscreened_reason[3]
+    assert p.usable.sum() == 28
+
+
+def test_float32_values_keep_their_written_decimals():
+    # Issue 10, item 18: float32 noise ("328.1700134277344") leaked into reasons.
+    column = pd.Series(np.array([328.17, -99.99, 1.1], dtype=np.float32), name="level_m")
+    values, _ = parse_values(column, ())
+    assert values.tolist() == [328.17, -99.99, 1.1]  # the decimals as written (numpy's shortest float32 repr)

@@ -116,6 +116,11 @@ class ScreenConfig:
         Variogram lag classes ``(0, W], (W, 2W], ...``: their number and width
         in metres. None derives them from the extent and spacing
         (:func:`pointsift.methods.variogram.lag_edges`).
+    thousands : {None, ","}
+        ``","`` says commas in text columns group thousands ("1,234.5").
+        None decides once per column from all its cells: a column whose
+        comma-bearing cells each hold one comma and no dot uses decimal
+        commas ("319,910" is 319.91) (:func:`pointsift.prepare.comma_convention`).
     """
 
     value: str
@@ -138,6 +143,7 @@ class ScreenConfig:
     detrend: str = "auto"
     lag_count: int | None = None
     lag_width: float | None = None
+    thousands: str | None = None
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -173,6 +179,8 @@ class ScreenConfig:
             value = getattr(self, name)
             if value is not None and not value > 0:
                 raise ConfigError(f"{name} must be positive, got {value!r}.")
+        if self.thousands not in (None, ","):
+            raise ConfigError(f"thousands must be ',' (commas group thousands) or left unset, got {self.thousands!r}.")
         object.__setattr__(self, "sentinels", tuple(float(s) for s in self.sentinels))
 
     def replace(self, **changes) -> "ScreenConfig":

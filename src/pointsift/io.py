@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, OutputError
+from .prepare import LOCATION_REASONS, READ_NOTES, _numbers_from_text, comma_convention
 
 __all__ = [
     "SourceInfo",
@@ -28,7 +29,9 @@ __all__ = [
     "list_layers",
     "file_sha256",
     "write_geopackage",
+    "remove_stale_partials",
     "SCREENED_LAYER",
+    "PARTIAL_SUFFIX",
 ]
 
 log = logging.getLogger(__name__)
@@ -111,6 +114,41 @@ def file_sha256(path: str | os.PathLike) -> str:
     return digest.hexdigest()
 
 
+_DAMAGED = ("malformed", "not a database", "file is encrypted", "corrupt", "invalid page", "checksum", "truncated", "unexpected end")
+
+
+def _plain(exc: BaseException, path=None) -> str:
+    """A library's error text without what means nothing to the user: SQL statements,
+    advice about the library's own API, driver prefixes, the path again; one line."""
+    text = " ".join(str(exc).split())
+    if path is not None:
+        for form in (f"'{path}'", f'"{path}"', str(path)):
+            text = text.replace(form, "the file")
+    if " failed: " in text:  # "sqlite3_prepare_v2(SELECT ...) failed: why": keep only why
+        text = text.rsplit(" failed: ", 1)[1]
+    parts = [p.strip() for p in text.split(";")]
+    text = "; ".join(dict.fromkeys(p for p in parts if p))  # "why; why" once
+    for marker in (" Use pandas.", " Use ", "It might help to specify", "prefix the file path", " SQL:", "SELECT ", "INSERT ", "CREATE ", "PRAGMA "):
+        cut = text.find(marker)
+        if cut > 0:
+            text = text[:cut]
+    text = text.rstrip(" .:;,")
+    return (text[:200] + "...") if len(text) > 200 else (text or type(exc).__name__)
+
+
+def _read_problem(path, what: str, exc: BaseException) -> InputError:
+    plain = _plain(exc, path)
+    if any(word in plain.lower() for word in _DAMAGED):
+        return InputError(
+            f"Cannot open {str(path)!r}: it looks damaged ({plain}), so {what} cannot be read. "
+            "Restore the file from a backup or export the layer again."
+        )
+    return InputError(
+        f"Cannot open {str(path)!r} to read {what} ({plain}). Check that the file is complete and of a supported "
+        "format (GeoPackage, shapefile, CSV, GeoParquet)."
+    )
+
+
 def list_layers(path: str | os.PathLike) -> list[str]:
     """Names of the layers in a vector file (one name for single-layer formats)."""
     import pyogrio
@@ -119,7 +157,7 @@ def list_layers(path: str | os.PathLike) -> list[str]:
     try:
         return [str(name) for name in pyogrio.list_layers(path)[:, 0]]
     except Exception as exc:  # pyogrio raises its own DataSourceError types
-        raise InputError(f"Cannot open {str(path)!r} as a vector file: {exc}. Check that the file is complete and of a supported format (GeoPackage, shapefile, CSV, GeoParquet).") from exc
+        raise _read_problem(path, "the list of layers", exc) from exc
 
 
 def _existing(path: str | os.PathLike) -> Path:
@@ -138,6 +176,7 @@ def read_points(
     x: str | None = None,
     y: str | None = None,
     crs: str | None = None,
+    thousands: str | None = None,
 ) -> tuple[gpd.GeoDataFrame, SourceInfo]:
     """Read a point layer from a GeoPackage, shapefile, CSV or GeoParquet file.
 
@@ -154,6 +193,9 @@ def read_points(
     crs : str, optional
         Only used for tables: the CRS of the coordinate columns. Layers keep
         their own CRS here; :func:`pointsift.prepare.prepare` checks it.
+    thousands : str, optional
+        ``","`` when commas in text coordinate columns group thousands
+        (see :func:`pointsift.prepare.comma_convention`).
 
     Returns
     -------
@@ -173,14 +215,10 @@ def read_points(
     sha = file_sha256(path)
     if suffix in _CSV_SUFFIXES:
         frame = _read_csv(path)
-        gdf, columns = _points_from_columns(frame, x, y, crs, str(path))
+        gdf, columns = _points_from_columns(frame, x, y, crs, str(path), thousands)
         return gdf, SourceInfo(str(path), None, "CSV", sha, columns)
     if suffix in _PARQUET_SUFFIXES:
-        try:
-            gdf = gpd.read_parquet(path)
-        except Exception as exc:
-            raise InputError(f"Cannot read {str(path)!r} as GeoParquet: {exc}. Check that the file is complete.") from exc
-        return gdf, SourceInfo(str(path), None, "GeoParquet", sha)
+        return _read_parquet(path, x, y, crs, sha, thousands)
 
     import pyogrio
 
@@ -201,37 +239,92 @@ def read_points(
         if suffix == ".gpkg":
             frame.index.name = _FEATURE_ID
     except Exception as exc:
-        raise InputError(f"Cannot read layer {layer!r} of {str(path)!r}: {exc}.") from exc
+        raise _read_problem(path, f"layer {layer!r}", exc) from exc
     driver = _VECTOR_SUFFIXES.get(suffix, "vector")
     if not isinstance(frame, gpd.GeoDataFrame) or frame.geometry.name not in frame.columns or _all_missing_geometry(frame):
         # an attribute table: build points from coordinate columns
         plain = pd.DataFrame(frame.drop(columns=[frame.geometry.name]) if isinstance(frame, gpd.GeoDataFrame) and "geometry" in frame.columns else frame)
-        gdf, columns = _points_from_columns(plain, x, y, crs, f"{path}:{layer}")
+        gdf, columns = _points_from_columns(plain, x, y, crs, f"{path}:{layer}", thousands)
         return gdf, SourceInfo(str(path), layer, driver, sha, columns)
     return frame, SourceInfo(str(path), layer, driver, sha)
+
+
+def _read_parquet(path: Path, x, y, crs, sha: str, thousands):
+    try:
+        gdf = gpd.read_parquet(path)
+    except ValueError as exc:
+        if "geo metadata" not in str(exc).lower():
+            raise _read_problem(path, "the GeoParquet table", exc) from exc
+        # a plain Parquet table (no geometry metadata): points from coordinate columns
+        try:
+            plain = pd.read_parquet(path)
+        except Exception as inner:
+            raise _read_problem(path, "the Parquet table", inner) from inner
+        gdf, columns = _points_from_columns(plain, x, y, crs, str(path), thousands)
+        return gdf, SourceInfo(str(path), None, "Parquet", sha, columns)
+    except Exception as exc:
+        raise _read_problem(path, "the GeoParquet table", exc) from exc
+    return gdf, SourceInfo(str(path), None, "GeoParquet", sha)
 
 
 def _all_missing_geometry(frame) -> bool:
     return isinstance(frame, gpd.GeoDataFrame) and len(frame) > 0 and frame.geometry.isna().all() and frame.crs is None
 
 
+def _leading_comment_lines(path: Path, encoding: str) -> int:
+    """Number of lines at the top of a text file that start with '#' (comments)."""
+    count = 0
+    with open(path, encoding=encoding, errors="replace", newline="") as handle:
+        for line in handle:
+            if not line.lstrip("\ufeff").startswith("#"):
+                break
+            count += 1
+    return count
+
+
+def _header_names(path: Path, sep, encoding: str, skip: int) -> list[str]:
+    """The header row exactly as written (pandas renames repeated names to 'name.1')."""
+    header = pd.read_csv(path, sep=sep, engine="python", encoding=encoding, skiprows=skip, header=None, nrows=1,
+                         skipinitialspace=True, dtype=str, keep_default_na=False)
+    return [str(v) for v in header.iloc[0].tolist()] if len(header) else []
+
+
+def _read_csv_as(path: Path, sep, encoding: str) -> pd.DataFrame:
+    skip = _leading_comment_lines(path, encoding)
+    names = _header_names(path, sep, encoding, skip)
+    repeated = sorted({name for name in names if names.count(name) > 1})
+    if repeated:
+        raise InputError(
+            f"{str(path)!r} has {len(repeated)} column name(s) used more than once: "
+            f"{', '.join(repr(n) for n in repeated)}. Rename the repeated columns in the file's header so each name is unique."
+        )
+    # let pandas infer types; bad values are prepare's job (unscreened rows), never a crash
+    frame = pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True,
+                        encoding=encoding, skiprows=skip)
+    if skip:
+        frame.attrs[READ_NOTES] = (f"Skipped {skip} comment line{'s' if skip > 1 else ''} starting with '#' at the top of {path.name}.",)
+    return frame
+
+
 def _read_csv(path: Path) -> pd.DataFrame:
     sep = "\t" if path.suffix.lower() == ".tsv" else None
     try:
-        # keep every column as text first would lose types; let pandas infer,
-        # but never let a bad value crash reading (value parsing is prepare's job)
         # utf-8-sig: spreadsheet "CSV UTF-8" exports start with a byte-order mark,
         # which would otherwise stick to the first column's name
-        return pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True, encoding="utf-8-sig")
+        return _read_csv_as(path, sep, "utf-8-sig")
     except UnicodeDecodeError:
         pass  # not UTF-8: an older spreadsheet export, read as Latin-1 below
+    except InputError:
+        raise
     except Exception as exc:
-        raise InputError(f"Cannot read {str(path)!r} as CSV: {exc}. Check the delimiter and quoting.") from exc
+        raise InputError(f"Cannot read {str(path)!r} as CSV ({_plain(exc)}). Check the delimiter and quoting.") from exc
     try:
-        return pd.read_csv(path, sep=sep, engine="python", encoding="latin-1", skipinitialspace=True)
+        return _read_csv_as(path, sep, "latin-1")
+    except InputError:
+        raise
     except Exception as exc:
         raise InputError(
-            f"Cannot read {str(path)!r} as CSV (not UTF-8, tried Latin-1): {exc}. "
+            f"Cannot read {str(path)!r} as CSV (not UTF-8, tried Latin-1: {_plain(exc)}). "
             "Check the delimiter and quoting, or save the file as UTF-8."
         ) from exc
 
@@ -255,10 +348,37 @@ def _find_coordinate_columns(columns, x: str | None, y: str | None, where: str) 
     )
 
 
-def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str):
+def _coordinate_column(column: pd.Series, thousands: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """Numbers of a coordinate column and, per cell, why it is not one ("" when it is)."""
+    n = len(column)
+    why = np.full(n, "", dtype=object)
+    if pd.api.types.is_numeric_dtype(column.dtype) and not pd.api.types.is_bool_dtype(column.dtype):
+        return column.to_numpy(dtype=float, na_value=np.nan), why
+    text = column.astype("object")
+    # a comma means the same thing in every cell of the column (as for values)
+    numbers = pd.to_numeric(_numbers_from_text(text, comma_convention(text, thousands)), errors="coerce")
+    numbers = numbers.to_numpy(dtype=float, na_value=np.nan)
+    filled = text.map(lambda v: not (v is None or (isinstance(v, float) and np.isnan(v)) or (isinstance(v, str) and not v.strip()))).to_numpy(dtype=bool)
+    for row in np.flatnonzero(np.isnan(numbers) & filled):
+        why[row] = f"coordinate {str(text.iloc[row])[:40]!r} is not a number"
+    return numbers, why
+
+
+def _swapped_names_note(cx, cy) -> str | None:
+    lat_like = {"lat", "latitude", "y", "northing", "north", "y_coord", "ycoord", "coord_y", "point_y"}
+    lon_like = {"lon", "long", "lng", "longitude", "x", "easting", "east", "x_coord", "xcoord", "coord_x", "point_x"}
+    if str(cx).lower() in lat_like and str(cy).lower() in lon_like:
+        return (
+            f"--x names column {str(cx)!r} and --y column {str(cy)!r}: x is the longitude or easting and y the "
+            "latitude or northing, so the columns look swapped. Check --x and --y."
+        )
+    return None
+
+
+def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str, thousands: str | None = None):
     cx, cy = _find_coordinate_columns(list(frame.columns), x, y, where)
-    xs = pd.to_numeric(frame[cx], errors="coerce").to_numpy(dtype=float)
-    ys = pd.to_numeric(frame[cy], errors="coerce").to_numpy(dtype=float)
+    xs, why_x = _coordinate_column(frame[cx], thousands)
+    ys, why_y = _coordinate_column(frame[cy], thousands)
     import shapely
 
     ok = np.isfinite(xs) & np.isfinite(ys)
@@ -269,6 +389,18 @@ def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str):
     table = pd.DataFrame(frame).copy()
     table[name] = gpd.GeoSeries(geometry, index=frame.index)
     gdf = gpd.GeoDataFrame(table, geometry=name, crs=crs)
+    reasons = np.where(why_x != "", why_x, why_y)
+    partial = ~ok & (reasons == "") & (np.isfinite(xs) | np.isfinite(ys))
+    reasons[partial] = "no location (one coordinate is blank)"
+    reasons[~ok & (reasons == "")] = "no location (blank coordinates)"
+    gdf.attrs[LOCATION_REASONS] = pd.Series(reasons, index=frame.index, dtype=object)
+    notes = tuple(frame.attrs.get(READ_NOTES, ()))
+    swapped = _swapped_names_note(cx, cy) if x is not None else None
+    if swapped:
+        log.warning(swapped)
+        notes += (swapped,)
+    if notes:
+        gdf.attrs[READ_NOTES] = notes
     return gdf, (str(cx), str(cy))
 
 
@@ -298,12 +430,103 @@ def _free_name(base: str, columns) -> str:
     return name
 
 
+#: Suffix of the temporary files written beside an output: no input format has it,
+#: so no folder scan or glob of inputs ever takes one.
+PARTIAL_SUFFIX = ".pointsift-partial"
+
+_WRITE_PROBLEMS = ("disk", "full", "i/o", "no space", "read-only", "readonly", "permission", "unable to open",
+                   "too large", "quota", "cannot open", "failed to create", "write error")
+
+
+def remove_stale_partials(folder: str | os.PathLike) -> list[str]:
+    """Remove temporary files a killed run left in ``folder`` (only those whose
+    writing process is gone); returns their names."""
+    removed = []
+    try:
+        entries = list(Path(folder).iterdir())
+    except OSError:
+        return removed
+    for item in entries:
+        name = item.name
+        if not name.startswith(".") or PARTIAL_SUFFIX not in name:
+            continue
+        try:
+            pid = int(name[: name.index(PARTIAL_SUFFIX)].rsplit(".", 2)[-2])
+        except (ValueError, IndexError):
+            continue
+        if _process_alive(pid):
+            continue
+        try:
+            item.unlink()
+            removed.append(name)
+        except OSError:
+            pass
+    return removed
+
+
+def _process_alive(pid: int) -> bool:
+    if pid <= 0:
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True  # someone else's live process
+    return True
+
+
+def _temporary_beside(out_path: Path) -> str:
+    handle, temporary = tempfile.mkstemp(prefix=f".{out_path.name}.{os.getpid()}.", suffix=PARTIAL_SUFFIX, dir=out_path.parent)
+    os.close(handle)
+    os.unlink(temporary)
+    return temporary
+
+
+def _write_problem(out_path: Path, exc: BaseException) -> OutputError | None:
+    """The output-problem error for a full disk, an I/O error or a refused write, else None."""
+    text = str(exc)
+    if isinstance(exc, OSError) and not isinstance(exc, OutputError):
+        why = exc.strerror or _plain(exc)
+    elif any(word in text.lower() for word in _WRITE_PROBLEMS):
+        why = _plain(exc)
+    else:
+        return None
+    return OutputError(
+        f"Cannot write {str(out_path)!r} ({why}). Free disk space or choose another --out folder, "
+        "and check that the folder is writable; nothing was written."
+    )
+
+
+def _move_into_place(temporary: str, out_path: Path, overwrite: bool) -> None:
+    """Rename the finished file into place. Without ``overwrite`` the step is
+    exclusive: a hard link fails when another run created the output meanwhile."""
+    if overwrite:
+        os.replace(temporary, out_path)
+        return
+    try:
+        os.link(temporary, out_path)
+    except FileExistsError:
+        raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.") from None
+    except OSError:
+        # no hard links on this file system: claim the name exclusively, then replace it
+        try:
+            claim = os.open(out_path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+        except FileExistsError:
+            raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.") from None
+        os.close(claim)
+        os.replace(temporary, out_path)
+        return
+    os.unlink(temporary)
+
+
 def write_geopackage(
     out_path: str | os.PathLike,
     layers: dict[str, pd.DataFrame],
     *,
     overwrite: bool = False,
     protect: tuple[str, ...] = (),
+    descriptions: dict[str, str] | None = None,
 ) -> Path:
     """Write layers and tables to one GeoPackage, atomically.
 
@@ -315,48 +538,72 @@ def write_geopackage(
         Layer name to data, written in order. A GeoDataFrame becomes a
         spatial layer; a plain DataFrame becomes a non-spatial table.
     overwrite : bool
-        Replace an existing file.
+        Replace an existing file. Without it the final step is exclusive: of
+        two runs creating the same new file, the second fails.
     protect : tuple of str
         Paths that must never be written (the inputs).
+    descriptions : dict of str to str, optional
+        Layer name to the description stored in ``gpkg_contents.description``.
 
     Returns
     -------
     pathlib.Path
         The written file.
+
+    Raises
+    ------
+    OutputError
+        The output exists (without ``overwrite``), is an input, its folder is
+        missing, or the disk is full or refuses the write.
     """
+    import warnings
+
     import pyogrio
 
     out_path = _atomic_target(Path(out_path), overwrite, protect)
-    handle, temporary = tempfile.mkstemp(prefix=f".{out_path.stem}.", suffix=".partial.gpkg", dir=out_path.parent)
-    os.close(handle)
-    os.unlink(temporary)
+    remove_stale_partials(out_path.parent)
+    temporary = _temporary_beside(out_path)
+    descriptions = descriptions or {}
     try:
-        for name, frame in layers.items():
-            if isinstance(frame, gpd.GeoDataFrame):
-                attributes = [c for c in frame.columns if c != frame.geometry.name]
-                # the GeoPackage's own key and geometry columns must not take an input
-                # column's name: GDAL would swallow a "FID" column as the feature id
-                options = {"FID": _free_name("fid", attributes), "GEOMETRY_NAME": _free_name("geom", attributes)}
-                if frame.index.name == _FEATURE_ID:
-                    # the input's own feature ids, kept as the output's
-                    frame = frame.rename_axis(options["FID"]).reset_index()
-                pyogrio.write_dataframe(
-                    frame, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary),
-                    promote_to_multi=False, layer_options=options, use_arrow=True,  # pyarrow is a dependency; about twice as fast
-                )
-            else:
-                table = pd.DataFrame(frame).reset_index(drop=True)
-                pyogrio.write_dataframe(
-                    table, temporary, layer=name, driver="GPKG", append=os.path.exists(temporary),
-                    layer_options={"FID": _free_name("fid", table.columns)},
-                )
-        os.replace(temporary, out_path)
-    except BaseException:
+        with warnings.catch_warnings():
+            # the temporary file's suffix is not .gpkg on purpose (see PARTIAL_SUFFIX)
+            warnings.filterwarnings("ignore", message=".*(extension should be|non conformant file extension).*", category=RuntimeWarning)
+            for name, frame in layers.items():
+                _write_layer(pyogrio, temporary, name, frame, descriptions.get(name))
+        _move_into_place(temporary, out_path, overwrite)
+    except BaseException as exc:
         for leftover in (temporary, temporary + "-journal", temporary + "-wal", temporary + "-shm"):
             if os.path.exists(leftover):
                 os.unlink(leftover)
+        problem = _write_problem(out_path, exc) if isinstance(exc, Exception) else None
+        if problem is not None:
+            raise problem from exc
         raise
     return out_path
+
+
+def _write_layer(pyogrio, temporary: str, name: str, frame: pd.DataFrame, description: str | None) -> None:
+    append = os.path.exists(temporary)
+    if isinstance(frame, gpd.GeoDataFrame):
+        attributes = [c for c in frame.columns if c != frame.geometry.name]
+        # the GeoPackage's own key and geometry columns must not take an input
+        # column's name: GDAL would swallow a "FID" column as the feature id
+        options = {"FID": _free_name("fid", attributes), "GEOMETRY_NAME": _free_name("geom", attributes)}
+        if description:
+            options["DESCRIPTION"] = description
+        if frame.index.name == _FEATURE_ID:
+            # the input's own feature ids, kept as the output's
+            frame = frame.rename_axis(options["FID"]).reset_index()
+        pyogrio.write_dataframe(
+            frame, temporary, layer=name, driver="GPKG", append=append,
+            promote_to_multi=False, layer_options=options, use_arrow=True,  # pyarrow is a dependency; about twice as fast
+        )
+    else:
+        table = pd.DataFrame(frame).reset_index(drop=True)
+        options = {"FID": _free_name("fid", table.columns)}
+        if description:
+            options["DESCRIPTION"] = description
+        pyogrio.write_dataframe(table, temporary, layer=name, driver="GPKG", append=append, layer_options=options)
 
 
 def run_info_table(record: dict) -> pd.DataFrame:

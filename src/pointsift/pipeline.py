@@ -338,6 +338,9 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
 
     screened = verdict["screen_status"].to_numpy() != "unscreened"
     out = frame.copy()
+    if out.crs is None:
+        # the CRS the run used (--crs), so the output is not written without one
+        out = out.set_crs(prepared.input_crs)
     added = {
         "screen_status": verdict["screen_status"].to_numpy(dtype=object),
         "screen_score": verdict["screen_score"].to_numpy(dtype=float),
@@ -350,12 +353,13 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         "neighbour_distance_m": np.where(screened, np.round(local.neighbour_distance, 2), np.nan),
         "local_moran_i": np.where(screened, autocorr.moran_i, np.nan),
         "local_moran_quadrant": np.array(
-            [QUADRANT_WORDS.get(int(q), "") if s else "" for q, s in zip(autocorr.quadrant, screened)], dtype=object
+            [QUADRANT_WORDS.get(int(q)) if s else None for q, s in zip(autocorr.quadrant, screened)], dtype=object
         ),
         "local_moran_p": np.where(screened, autocorr.p_value, np.nan),
         "local_moran_p_adjusted": np.where(screened, autocorr.p_adjusted, np.nan),
         "getis_ord_gi_star_z": np.where(screened, autocorr.gi_star_z, np.nan),
-        "coincident_role": coincident["role"].to_numpy(dtype=object),
+        # NULL, not "", where there is nothing to say (unscreened or alone)
+        "coincident_role": np.where(coincident["role"].to_numpy(dtype=object) == "", None, coincident["role"].to_numpy(dtype=object)),
     }
     for name in ADDED_COLUMNS:
         out[name] = added[name]

@@ -77,6 +77,10 @@ def coincident_conflicts(
     far_is_max = (gmax - v) >= (v - gmin)
     diff = np.where(far_is_max, gmax - v, v - gmin)
     other = np.where(far_is_max, row_of_max, row_of_min)
+    # equal values: the extreme may be the row itself; name another member instead
+    first = grouped["row"].transform("first").to_numpy()
+    last = grouped["row"].transform("last").to_numpy()
+    other = np.where(other == rows, np.where(first != rows, first, last), other)
     tol = scale[rows] * 1.0 if value_tolerance is None else np.full(rows.size, float(value_tolerance))
     tol = np.where(np.isfinite(tol), tol, 0.0)
     single = size < 2
