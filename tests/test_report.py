@@ -26,8 +26,9 @@ from pointsift.cli import main
 from pointsift.config import ScreenConfig
 from pointsift.errors import OutputError
 from pointsift.report import build_report, flagged_rows
-from pointsift.report.figures import grid_north_offset, neighbour_mean_scatter, nice_length, plot_status_map
-from pointsift.report.html import format_number
+from pointsift.findings import MapData
+from pointsift.report.figures import grid_north_offset, nice_length, plot_status_map
+from pointsift.report.numbers import format_length, format_number
 from pointsift.run import screen_file
 
 from conftest import build_wells, write_points
@@ -169,8 +170,7 @@ def test_every_image_is_a_sharp_png_and_every_svg_parses(screened):
 
 def test_figures_named_in_summary_are_all_on_the_page(screened):
     summary, page = screened["summary"], _parse(screened["html"])
-    expected = {"status_map", "histogram", "histogram_without_suspects", "strips", "residual_map", "neighbour_scatter",
-                "variogram"}
+    expected = {"status_map", "histogram", "strips", "residual_map", "neighbour_scatter", "variogram"}
     expected |= {f["figure"] for f in summary["lag_pairs"]["figures"]}
     assert set(summary["figures"]) == expected
     assert len(page.images) == len(expected)
@@ -252,44 +252,87 @@ def test_quadrant_and_strip_numbers_equal_the_geopackage(screened):
     assert summary["local_evidence"]["neighbour_scatter"]["quadrant_counts"] == {
         w: int(counts.get(w, 0)) for w in ("high among high", "low among high", "low among low", "high among low")}
     tables = set(pyogrio.list_layers(screened["gpkg"])[:, 0])
-    if "strips" in tables and summary["strips"].get("from_screen"):
-        strips = pyogrio.read_dataframe(screened["gpkg"], layer="strips")
-        assert len(strips) == len(summary["strips"]["rows"])
-        for got, row in zip(summary["strips"]["rows"], strips.itertuples()):
-            assert (got["n"], got["flagged"]) == (row.n, bool(row.flagged))
-            assert got["u"] == (None if math.isnan(row.u) else row.u)
-    # lag pairs and variogram taken from the screen must be the ones its GeoPackage holds
-    if not summary["variogram"]["computed_for_report"]:
-        table = pyogrio.read_dataframe(screened["gpkg"], layer="variogram", read_geometry=False)
-        assert len(table) == len(summary["variogram"]["table"])
-        np.testing.assert_array_equal(table["pairs"].to_numpy(), [r["pairs"] for r in summary["variogram"]["table"]])
-        got = np.array([np.nan if r["gamma"] is None else r["gamma"] for r in summary["variogram"]["table"]])
-        np.testing.assert_array_equal(table["gamma"].to_numpy(dtype=float), got)
-    if not summary["lag_pairs"]["computed_for_report"]:
-        pairs = pyogrio.read_dataframe(screened["gpkg"], layer="lag_pairs")
-        assert len(pairs) == summary["lag_pairs"]["pairs_flagged"] == len(summary["lag_pairs"]["flagged_pairs"])
-        assert pairs["tail_id"].tolist() == [p["tail_id"] for p in summary["lag_pairs"]["flagged_pairs"]]
-        assert pairs["pair_z"].tolist() == [p["pair_z"] for p in summary["lag_pairs"]["flagged_pairs"]]
-    assert "lag_pairs" in tables or summary["lag_pairs"]["computed_for_report"]
+    # the screen writes these three; the report must show exactly what they hold
+    assert {"strips", "variogram", "lag_pairs"} <= tables
+    strips = pyogrio.read_dataframe(screened["gpkg"], layer="strips")
+    assert len(strips) == len(summary["strips"]["rows"]) > 0
+    for got, row in zip(summary["strips"]["rows"], strips.itertuples()):
+        assert (got["n"], got["flagged"]) == (row.n, bool(row.flagged))
+        assert got["u"] == (None if math.isnan(row.u) else row.u)
+    table = pyogrio.read_dataframe(screened["gpkg"], layer="variogram", read_geometry=False)
+    assert summary["variogram"]["available"] and len(table) == len(summary["variogram"]["table"]) > 0
+    np.testing.assert_array_equal(table["pairs"].to_numpy(), [r["pairs"] for r in summary["variogram"]["table"]])
+    got = np.array([np.nan if r["gamma"] is None else r["gamma"] for r in summary["variogram"]["table"]])
+    np.testing.assert_array_equal(table["gamma"].to_numpy(dtype=float), got)
+    pairs = pyogrio.read_dataframe(screened["gpkg"], layer="lag_pairs")
+    assert summary["lag_pairs"]["available"] and summary["lag_pairs"]["pairs_flagged"] > 0
+    assert len(pairs) == summary["lag_pairs"]["pairs_flagged"] == len(summary["lag_pairs"]["flagged_pairs"])
+    assert pairs["tail_id"].tolist() == [p["tail_id"] for p in summary["lag_pairs"]["flagged_pairs"]]
+    assert pairs["pair_z"].tolist() == [p["pair_z"] for p in summary["lag_pairs"]["flagged_pairs"]]
 
 
-def test_histogram_counts_equal_numpy_and_stem_leaf_counts_add_up(screened):
+def _page_text(html: str, element_id: str) -> str:
+    start = html.index(f'id="{element_id}"')
+    return re.sub(r"<[^>]+>", " ", html[start:html.index("</table>", start)])
+
+
+def test_page_json_and_geopackage_agree_on_model_counts_thresholds_and_flagged_rows(screened):
+    summary, html = screened["summary"], screened["html"]
+    info = pyogrio.read_dataframe(screened["gpkg"], layer="run_info", read_geometry=False).set_index("key")["value"]
+    # variogram model: the GeoPackage's run record, the JSON and the page
+    stored = json.loads(info["variogram"])["model"]
+    shown = summary["variogram"]["model"]
+    for key in ("model", "nugget", "partial_sill", "sill", "practical_range", "trustworthy"):
+        assert shown[key] == stored[key], key
+    model_text = _page_text(html, "variogram-model")
+    assert format_number(stored["nugget"]) in model_text and format_number(stored["sill"]) in model_text
+    assert format_length(stored["practical_range"]) in model_text
+    # thresholds: the screen's parameters, the JSON and the page's own statement
+    parameters = json.loads(info["parameters"])
+    assert summary["thresholds"]["suspect_z"] == parameters["suspect_z"] == 3.5  # ScreenConfig default
+    assert summary["thresholds"]["review_z"] == parameters["review_z"]
+    assert summary["thresholds"]["fdr"] == parameters["fdr"]
+    assert f"|z| &ge; {format_number(parameters['suspect_z'])}" in html
+    # counts and every flagged row, neighbourhood included, against the layer and its distances
+    assert json.loads(info["counts"]) == summary["counts"] == _parse(html).cards
+    layer = screened["layer"]
+    rows = summary["flagged"]["rows"]
+    assert rows and summary["flagged"]["neighbourhoods"]
+    xy = np.column_stack([layer.geometry.x, layer.geometry.y])  # the test layer is projected in metres
+    ids = layer["well_id"].tolist()
+    for item in rows:
+        g = layer.loc[item["row"]]
+        assert item["residual_scale"] == g["residual_scale"] and item["local_residual_z"] == g["local_residual_z"]
+        assert len(item["neighbours"]) == g["neighbour_count"]
+        for nb in item["neighbours"]:
+            assert ids[nb["row"]] == nb["id"] and nb["value"] == layer.loc[nb["row"], "level_m"]
+            assert math.isclose(nb["distance_m"], float(np.hypot(*(xy[nb["row"]] - xy[item["row"]]))), rel_tol=1e-9)
+        assert f'data-row="{item["row"]}"' in html
+
+
+def test_histogram_and_stem_leaf_set_far_values_apart(screened):
     summary, layer = screened["summary"], screened["layer"]
     values = layer["level_m"].to_numpy(dtype=float)
     values = values[np.isfinite(values)]
-    hist = summary["distribution"]["histogram"]
-    counts, _ = np.histogram(values, bins=np.asarray(hist["edges"]))  # reference: numpy.histogram on the same edges
-    assert hist["counts"] == counts.tolist()
-    assert sum(hist["counts"]) == values.size == summary["distribution"]["all"]["n"]
-    kept = layer.loc[layer["screen_status"] != "suspect", "level_m"].to_numpy(dtype=float)
-    kept = kept[np.isfinite(kept)]
-    second = summary["distribution"]["histogram_without_suspects"]
-    assert second["counts"] == np.histogram(kept, bins=np.asarray(second["edges"]))[0].tolist()
-    assert sum(line["count"] for line in summary["distribution"]["stem_leaf"]["lines"]) == values.size
+    d = summary["distribution"]
+    q1, q3 = np.percentile(values, [25, 75])  # reference: numpy percentiles, Tukey's far fences at 3 IQR
+    low, high = q1 - 3 * (q3 - q1), q3 + 3 * (q3 - q1)
+    assert math.isclose(d["far_fences"]["low"], low) and math.isclose(d["far_fences"]["high"], high)
+    inner = values[(values >= low) & (values <= high)]
+    hist = d["histogram"]
+    assert hist["counts"] == np.histogram(inner, bins=np.asarray(hist["edges"]))[0].tolist()  # numpy.histogram
+    assert sum(hist["counts"]) + hist["low"]["n"] + hist["high"]["n"] == values.size == d["all"]["n"]
+    assert hist["high"]["values"] == sorted(values[values > high].tolist())
+    assert hist["low"]["values"] == sorted(values[values < low].tolist())
+    assert layer.loc[7, "level_m"] in hist["high"]["values"]  # the planted decimal slip (x 10)
+    stem = d["stem_leaf"]
+    assert sum(line["count"] for line in stem["lines"]) == inner.size
+    text = stem["text"].splitlines()
+    assert text[-1].startswith("HI: ") and f"{layer.loc[7, 'level_m']:.{max(0, -int(round(math.log10(stem['leaf_unit']))))}f}" in text[-1]
+    assert ("LO: " in stem["text"]) == bool(hist["low"]["n"])
     # the summary without suspects leaves out exactly the suspect rows
-    kept = summary["distribution"]["without_suspects"]
-    assert kept["n"] == values.size - summary["counts"]["suspect"]
-    assert math.isclose(summary["distribution"]["all"]["mean"], float(np.mean(values)), rel_tol=1e-12)
+    assert d["without_suspects"]["n"] == values.size - summary["counts"]["suspect"]
+    assert math.isclose(d["all"]["mean"], float(np.mean(values)), rel_tol=1e-12)
 
 
 # --------------------------------------------------------------------------- pieces checked against outside references
@@ -298,36 +341,39 @@ def test_neighbour_scatter_equals_esda_local_moran_quadrants():
     import esda
     import libpysal
 
+    from pointsift.graph import build_graph
+    from pointsift.methods.autocorr import local_autocorrelation
+
     rng = np.random.default_rng(5)
     n, k = 60, 6
     xy = rng.uniform(0, 1000, (n, 2))
     values = xy[:, 0] * 0.01 + rng.normal(0, 1, n)
-    d = np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
-    np.fill_diagonal(d, np.inf)
-    indices = np.argsort(d, axis=1)[:, :k]
-    judged = np.ones(n, dtype=bool)
-    z, lag = neighbour_mean_scatter(values, indices, judged)
-    w = libpysal.weights.W({i: indices[i].tolist() for i in range(n)})
+    graph = build_graph(xy, kind="knn", k=k)
+    auto = local_autocorrelation(values, graph, permutations=9, seed=1)
+    z, lag = auto.standardized, auto.neighbour_mean
+    w = libpysal.weights.W({i: graph.indices[i][graph.indices[i] >= 0].tolist() for i in range(n)})
     w.transform = "r"
     reference = esda.Moran_Local(values, w, permutations=0)  # esda: standardized z and its quadrant q
     np.testing.assert_allclose(z, reference.z, rtol=1e-12)
     np.testing.assert_allclose(lag, libpysal.weights.lag_spatial(w, reference.z), rtol=1e-12)
-    ours = np.where(z > 0, np.where(lag > 0, 1, 4), np.where(lag > 0, 2, 3))
-    np.testing.assert_array_equal(ours, reference.q)
+    np.testing.assert_array_equal(auto.quadrant, reference.q)
     # the slope of the neighbour mean on the value is global Moran's I for row-standardized weights
     moran = esda.Moran(values, w, permutations=0)
     assert math.isclose(float((z * lag).sum() / (z * z).sum()), moran.I, rel_tol=1e-10)
 
 
 def test_neighbour_scatter_leaves_out_unjudged_rows_and_neighbours():
-    values = np.array([1.0, 2.0, 3.0, 4.0, 100.0])
+    from pointsift.graph import NeighbourGraph
+    from pointsift.methods.autocorr import local_autocorrelation
+
+    values = np.array([1.0, 2.0, 3.0, 4.0, np.nan])
     indices = np.array([[1, 2], [0, 4], [1, 3], [2, -1], [0, 1]])
-    judged = np.array([True, True, True, True, False])
-    z, lag = neighbour_mean_scatter(values, indices, judged)
+    graph = NeighbourGraph(indices, np.where(indices >= 0, 1.0, np.inf), "knn", np.inf)
+    auto = local_autocorrelation(values, graph, permutations=9, seed=0)
     y = values[:4]
-    zz = (y - y.mean()) / y.std()  # numpy std, n denominator, as esda and pointsift's autocorrelation use
-    assert np.isnan(z[4]) and np.isnan(lag[4])
-    np.testing.assert_allclose(lag[:4], [(zz[1] + zz[2]) / 2, zz[0], (zz[1] + zz[3]) / 2, zz[2]])
+    zz = (y - y.mean()) / y.std()  # numpy std, n denominator, as esda uses
+    assert np.isnan(auto.standardized[4]) and np.isnan(auto.neighbour_mean[4])
+    np.testing.assert_allclose(auto.neighbour_mean[:4], [(zz[1] + zz[2]) / 2, zz[0], (zz[1] + zz[3]) / 2, zz[2]])
 
 
 def test_meridian_convergence_of_utm_matches_the_textbook_formula():
@@ -350,7 +396,7 @@ def test_scale_bar_lengths_are_round(span, expected):
 
 def test_large_layers_are_shaded_not_dropped(screened):
     result = screened["run"].result
-    report = build_report(result, max_points=100, lag_pairs=False, variogram=False)
+    report = build_report(result, max_points=100)
     summary = report.summary
     counts = summary["counts"]
     assert summary["map"]["shaded"] == {"ok": counts["ok"]}
@@ -358,18 +404,26 @@ def test_large_layers_are_shaded_not_dropped(screened):
     assert summary["flagged"]["count"] == counts["suspect"] + counts["review"]
     rm = summary["local_evidence"]["residual_map"]
     assert rm["sample_seed"] == 0 and rm["drawn"] == 100 and rm["points"] > 100
-    assert "shown as density shading" in report.html and "seeded sample" in report.html
+    assert "shown as density" in report.html and "seeded sample" in report.html
 
 
-def test_status_map_labels_the_strongest_suspects():
-    xy = np.array([[0.0, 0.0], [1000.0, 0.0], [0.0, 1000.0], [1000.0, 1000.0], [500.0, 500.0]])
-    status = np.array(["suspect", "suspect", "review", "ok", "suspect"], dtype=object)
-    ids = np.array(["A", "B", "C", "D", "E"], dtype=object)
-    score = np.array([5.0, 9.0, 3.5, 0.2, 7.0])
-    fig, record = plot_status_map(xy, status, ids, score, crs_label="EPSG:32633", max_labels=2)
-    labels = [t.get_text() for t in fig.axes[0].texts if t.get_text() in set(ids)]
-    assert labels == ["B", "E"]
-    assert record["labelled"] == 2 and record["drawn"] == {"ok": 1, "unscreened": 0, "review": 1, "suspect": 3}
+def test_status_map_labels_the_strongest_suspects_without_overlap():
+    xy = np.array([[0.0, 0.0], [1000.0, 0.0], [0.0, 1000.0], [1000.0, 1000.0], [500.0, 500.0], [520.0, 510.0]])
+    status = np.array(["suspect", "suspect", "review", "ok", "suspect", "suspect"], dtype=object)
+    ids = np.array(["A", "B", "C", "D", "E", "F"], dtype=object)
+    score = np.array([5.0, 9.0, 3.5, 0.2, 7.0, 6.0])
+    data = MapData(xy=xy, values=np.array([1.0, 2.0, 3.0, 4.0, 5.0, 6.0]), ids=ids, status=status, score=score)
+    fig, record = plot_status_map(data, crs_label="EPSG:32633", max_labels=3)
+    texts = [t for t in fig.axes[0].texts if t.get_text() in set(ids)]
+    assert [t.get_text() for t in texts] == ["B", "E", "F"]
+    assert record["labelled"] == 3 and record["drawn"] == {"ok": 1, "unscreened": 0, "review": 1, "suspect": 4}
+    # E and F are 22 m apart: their labels must still not overlap (boxes in pixels, as drawn)
+    renderer = fig.canvas.get_renderer()
+    boxes = [t.get_window_extent(renderer) for t in texts]
+    assert not any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:])
+    assert record["labels_overlapping"] == 0
+    fig, record = plot_status_map(data, crs_label="EPSG:32633")
+    assert record["labelled"] == 4  # every suspect
 
 
 def test_flagged_rows_order():
@@ -378,11 +432,21 @@ def test_flagged_rows_order():
     assert flagged_rows(status, score).tolist() == [4, 2, 1, 3]
 
 
-def test_format_number():
+def test_numbers_are_written_for_people():
     assert format_number(None) == "n/a"
     assert format_number(12345) == "12,345"
-    assert format_number(301.74912345) == "301.749"
+    assert format_number(301.74912345) == "301.7"
     assert format_number(3968.54321, 3) == "3,969"
+    assert format_number(14410.2) == "14,410"  # never "1.441e+04"
+    assert format_number(0.000123456) == "0.0001235"
+    assert format_length(24015.3) == "24 km" and format_length(850.4) == "850 m" and format_length(2400.0) == "2.4 km"
+
+
+def test_page_has_no_exponents_and_no_bracketed_plurals(screened):
+    shown = re.sub(r"<(script|style)[^>]*>.*?</\1>", " ", screened["html"], flags=re.S)
+    shown = re.sub(r'(src|title|data-sort)="[^"]*"', " ", shown)
+    assert not re.search(r"\d\.?\d*e[+-]\d\d", shown), re.search(r".{40}\d\.?\d*e[+-]\d\d.{20}", shown)
+    assert "(s)" not in shown
 
 
 # --------------------------------------------------------------------------- describe and the command line
@@ -406,10 +470,13 @@ def test_describe_report_without_a_screen_says_what_is_missing(tmp_path):
     assert summary["distribution"]["all"]["n"] == 150
     # the bin width asked for is the one reported, and the counts are numpy's on those edges
     hist = summary["distribution"]["histogram"]
-    assert hist["bin_width"] == 5.0 and "given" in hist["title"]
+    assert hist["bin_width"] == 5.0 and "given" in hist["rule"]
     values = pyogrio.read_dataframe(source)["level_m"].to_numpy()
-    assert hist["counts"] == np.histogram(values, bins=np.asarray(hist["edges"]))[0].tolist()
+    lo, hi = summary["distribution"]["far_fences"]["low"], summary["distribution"]["far_fences"]["high"]
+    inner = values[(values >= lo) & (values <= hi)]
+    assert hist["counts"] == np.histogram(inner, bins=np.asarray(hist["edges"]))[0].tolist()  # numpy.histogram
     np.testing.assert_allclose(np.diff(hist["edges"])[:-1], 5.0)
+    assert summary["title"].startswith("Description of level_m") and "<h1>Description of level_m" in html
 
 
 def test_describe_report_of_a_screened_layer_uses_its_statuses(screened, tmp_path):
@@ -442,14 +509,12 @@ def test_cli_refuses_to_replace_a_report_without_overwrite(tmp_path):
 
 
 def test_report_write_refuses_the_input_and_missing_folders(screened, tmp_path):
-    report = build_report(screened["run"].result, lag_pairs=False, variogram=False)
+    report = build_report(screened["run"].result)
     with pytest.raises(OutputError, match="over the input"):
         report.write(tmp_path / "in.gpkg", protect=(str(tmp_path / "in.gpkg"),))
     with pytest.raises(OutputError, match="does not exist"):
         report.write(None, tmp_path / "nowhere" / "s.json")
-    sections = {s["id"]: s for s in report.summary["sections"]}
-    assert not sections["lag_pairs"]["available"] and "Not available" in report.html
-    assert pd.isna(report.summary["lag_pairs"].get("pairs_flagged", np.nan))
+    assert not (tmp_path / "in.gpkg").exists()
 
 
 def test_ids_and_reasons_are_shown_as_text_not_markup(tmp_path):
@@ -459,7 +524,7 @@ def test_ids_and_reasons_are_shown_as_text_not_markup(tmp_path):
     wells["well_id"] = [f'<b>W"{i}&</b>' for i in range(80)]
     wells.loc[10, "level_m"] *= 10.0  # a decimal slip, so the table has a row
     result = screen_frame(wells, ScreenConfig(value="level_m", id="well_id"))
-    report = build_report(result, lag_pairs=False, variogram=False)
+    report = build_report(result)
     page = _parse(report.html)
     assert "<b>W" not in report.html
     shown = {r["cells"][1]["text"] for r in page.table_rows}

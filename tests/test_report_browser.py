@@ -263,3 +263,59 @@ def test_report_in_headless_chromium(opened):
     assert opened["url"] in requested
     assert all(url.startswith(("file:", "data:")) for url in requested), [u[:60] for u in requested]
     assert time.monotonic() - started < 30
+
+
+def _reload(opened) -> None:
+    browser = opened["browser"]
+    browser.events[:] = [e for e in browser.events if e.get("method") != "Page.loadEventFired"]  # wait for the new one
+    browser.send("Page.reload", session=opened["session"])
+    browser.wait_for("Page.loadEventFired", opened["session"], timeout=20)
+
+
+def _visible_rect(opened, selector: str) -> dict:
+    return _evaluate(opened, f"""(() => {{ window.scrollTo(0, 0); const e = document.querySelector({json.dumps(selector)});
+        const r = e.getBoundingClientRect(); return {{top: r.top, bottom: r.bottom, left: r.left, right: r.right,
+        width: r.width, height: r.height, viewport: window.innerHeight}}; }})()""")
+
+
+def test_first_screen_shows_the_counts_and_the_first_neighbourhood(opened):
+    # desktop width: without scrolling, the four counts and the first flagged point's map are in view
+    _reload(opened)  # as first opened (the test above sorted and filtered)
+    for selector in (".cards", "#flagged .hood-card svg.hood", "#flagged .hood-card > h3"):
+        rect = _visible_rect(opened, selector)
+        assert rect["height"] > 0 and rect["top"] >= 0 and rect["bottom"] <= rect["viewport"], (selector, rect)
+    why = _visible_rect(opened, "#flagged .hood-card .facts .why")  # the reasons begin on the first screen too
+    assert why["top"] < why["viewport"] - 60, why
+    first_card = _evaluate(opened, 'Number(document.querySelector("#flagged .hood-card").dataset.row)')
+    first_row = _evaluate(opened, 'Number(document.querySelector("#flagged-table tbody tr").dataset.row)')
+    assert first_card == first_row  # the strongest flag first in both
+    labels = _evaluate(opened, """Array.from(document.querySelector("#flagged .hood-card svg.hood")
+        .querySelectorAll("text")).map(t => t.textContent)""")
+    neighbours = _evaluate(opened, """document.querySelector("#flagged .hood-card").querySelectorAll("details li").length""")
+    assert neighbours >= 4 and len(labels) >= neighbours  # a value label per neighbour, the ring and the point
+
+
+def test_phone_width_has_no_sideways_scroll_and_shows_the_reasons(opened):
+    browser, session = opened["browser"], opened["session"]
+    browser.send("Emulation.setDeviceMetricsOverride",
+                 {"width": 390, "height": 844, "deviceScaleFactor": 2, "mobile": True}, session=session)
+    try:
+        _reload(opened)
+        width = _evaluate(opened, "document.documentElement.scrollWidth")
+        inner = _evaluate(opened, "window.innerWidth")
+        assert inner == 390 and width <= inner, (width, inner)
+        # open every collapsed section: still no sideways scroll
+        _evaluate(opened, 'document.querySelectorAll("details").forEach(d => d.open = true); 0')
+        assert _evaluate(opened, "document.documentElement.scrollWidth") <= inner
+        # the reasons of the first point to check sit inside the screen, wide enough to read
+        reasons = _visible_rect(opened, "#flagged-table tbody tr td.reasons")
+        assert reasons["left"] >= 0 and reasons["right"] <= inner and reasons["width"] >= 300, reasons
+        # figures fill the width (their 9-10 point text then stays about 9 CSS pixels high)
+        widths = _evaluate(opened, """Array.from(document.querySelectorAll("figure img"))
+            .map(i => [i.getBoundingClientRect().width, i.naturalWidth])""")
+        assert widths and all(w <= inner and w >= 0.85 * min(inner - 20, n / 2) for w, n in widths), widths
+        shot = browser.send("Page.captureScreenshot", {"format": "png"}, session=session)
+        (opened["folder"] / "report_phone.png").write_bytes(base64.b64decode(shot["data"]))
+    finally:
+        browser.send("Emulation.setDeviceMetricsOverride",
+                     {"width": VIEWPORT[0], "height": VIEWPORT[1], "deviceScaleFactor": 1, "mobile": False}, session=session)

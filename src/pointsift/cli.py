@@ -382,6 +382,8 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         figures=figures_dir is not None,
         bin_width=bin_width,
         value_label=config.value,
+        seed=config.seed,
+        screen=result,
     )
     if not ctx.obj.get("quiet"):
         _echo_description(description, config.value, where)
@@ -423,31 +425,30 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
     if report_path is not None or summary_json_path is not None:
         from .report import build_report
 
-        if result is not None:
-            report = build_report(result, description=description, bin_width=bin_width)
-        else:
-            report = build_report(
-                prepared=prepared,
-                description=description,
-                bin_width=bin_width,
-                run_info={
-                    "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-                    "input_path": source.path,
-                    "input_layer": source.layer,
-                    "input_format": source.driver,
-                    "input_sha256": source.sha256,
-                    "value_column": config.value,
-                    "id_column": config.id,
-                    "input_crs": prepared.input_crs.to_string(),
-                    "work_crs": prepared.work_crs.to_string(),
-                    "work_crs_name": prepared.work_crs.name,
-                    "output_path": out_path,
-                    "parameters": config.as_record(),
-                    "strip_widths_m": {f"{d:g}": w for d, w in description.strips.widths.items()},
-                    "trend": description.trend_info,
-                    "notes": list(prepared.notes),
-                },
-            )
+        run_info = None
+        if result is None:
+            from .pipeline import CAUTION, library_versions
+
+            run_info = {
+                "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+                "input_path": source.path,
+                "input_layer": source.layer,
+                "input_format": source.driver,
+                "input_sha256": source.sha256,
+                "value_column": config.value,
+                "id_column": config.id,
+                "input_crs": prepared.input_crs.to_string(),
+                "work_crs": prepared.work_crs.to_string(),
+                "work_crs_name": prepared.work_crs.name,
+                "output_path": out_path,
+                "parameters": config.as_record(),
+                "strip_widths_m": {f"{d:g}": w for d, w in description.strips.widths.items()},
+                "trend": description.trend_info,
+                "notes": list(prepared.notes),
+                "versions": library_versions(),
+                "caution": CAUTION,
+            }
+        report = build_report(description=description, run_info=run_info)
         for path in report.write(report_path, summary_json_path, protect=(os.fspath(input_path),)).values():
             if not ctx.obj.get("quiet"):
                 click.echo(f"Wrote {path}.")

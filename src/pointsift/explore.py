@@ -13,6 +13,7 @@ from __future__ import annotations
 import logging
 from collections import Counter
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import geopandas as gpd
 import numpy as np
@@ -22,7 +23,7 @@ from .errors import ConfigError, InputError
 from .methods.stemleaf import StemLeaf, stem_and_leaf_table
 from .methods.strips import DEFAULT_DIRECTIONS, MIN_STRIP_N, StripResult, strip_summary
 from .methods.summary import Summary, SummaryShift, global_summary, summary_shift
-from .methods.trend import PolishSurface, TrendSurface, regional_trend
+from .methods.trend import PolishSurface, TrendSurface
 from .prepare import Prepared
 
 __all__ = ["Description", "describe", "description_layers", "TREND_CHOICES", "STRIPS_LAYER"]
@@ -67,6 +68,16 @@ class Description:
         when a trend was fitted); None when they cannot be computed.
     variogram_basis : str
         What the variogram was computed on.
+    structure : SpatialStructure or None
+        Trend, lag pairs and variogram, made by the same function as a
+        screen's (:func:`pointsift.pipeline.spatial_structure`).
+    value_label, seed : str, int
+        Value column and the seed of the random draws.
+    screen : ScreenResult or None
+        The screen made alongside (``describe --with-screen``).
+
+    The :attr:`findings` (every number a report shows) are made from these
+    on first use.
     """
 
     prepared: Prepared
@@ -80,6 +91,18 @@ class Description:
     figures: dict = field(default_factory=dict)
     variogram: object = None
     variogram_basis: str = ""
+    structure: object = None
+    value_label: str = "value"
+    seed: int = 0
+    screen: object = None
+    display_options: dict = field(default_factory=dict)
+
+    @cached_property
+    def findings(self):
+        """:class:`pointsift.findings.Findings` of this description (and of its screen, if any)."""
+        from .findings import describe_findings
+
+        return describe_findings(self, self.structure, screen=self.screen, **self.display_options)
 
     def strips_layer(self) -> gpd.GeoDataFrame:
         """The strip table as a polygon layer in the work CRS."""
@@ -91,13 +114,6 @@ class Description:
         if self.shift is not None:
             table["without_suspects"] = list(self.shift.without_suspects.as_dict().values())
         return table
-
-
-def _fit_trend(prepared: Prepared, mode: str):
-    # one rule for the screen and describe (methods.trend.regional_trend); all points, no sample
-    values = np.where(prepared.usable, prepared.values, np.nan)
-    fit, _, info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, mode)
-    return fit, info
 
 
 def describe(
@@ -115,6 +131,8 @@ def describe(
     value_label: str = "value",
     lag_count: int | None = None,
     lag_width: float | None = None,
+    seed: int | None = None,
+    screen=None,
 ) -> Description:
     """Describe a prepared layer: summary, stem-and-leaf, strips and trend.
 
@@ -142,6 +160,11 @@ def describe(
         Axis label of the figures.
     lag_count, lag_width : optional
         Variogram lag classes (see :func:`pointsift.methods.variogram.lag_edges`).
+    seed : int, optional
+        Seed of the pair subsampling (the screen's default when omitted).
+    screen : ScreenResult, optional
+        A screen of the same layer: its statuses, flags and local evidence
+        join the findings.
 
     Returns
     -------
@@ -175,8 +198,13 @@ def describe(
     strips = strip_summary(
         prepared.xy[:, 0], prepared.xy[:, 1], values, directions, strip_width, min_n=min_strip_n
     )
-    fit, trend_info = _fit_trend(prepared, trend)
-    variogram, variogram_basis = _variogram(prepared, values, fit, trend_info, lag_count, lag_width)
+    from .config import ScreenConfig
+    from .pipeline import spatial_structure
+
+    seed = ScreenConfig.seed if seed is None else int(seed)
+    structure = spatial_structure(prepared, detrend=trend, lag_count=lag_count, lag_width=lag_width, seed=seed)
+    fit, trend_info = structure.trend, structure.trend_info
+    variogram, variogram_basis = structure.variogram, structure.basis
     drawn = {}
     if figures:
         from .methods.strips import plot_strip_profiles
@@ -202,22 +230,12 @@ def describe(
         figures=drawn,
         variogram=variogram,
         variogram_basis=variogram_basis,
+        structure=structure,
+        value_label=value_label,
+        seed=seed,
+        screen=screen,
+        display_options={"bin_width": bin_width, "stem_unit": stem_unit, "split": split},
     )
-
-
-def _variogram(prepared: Prepared, values: np.ndarray, fit, trend_info: dict, lag_count=None, lag_width=None):
-    """Variograms of the values, or of the trend residuals when a trend was fitted (as the screen does)."""
-    from .methods.variogram import analyse_variogram
-
-    basis = "values"
-    if fit is not None:
-        values = np.where(prepared.usable, fit.residual, np.nan)
-        basis = f"residuals from the trend ({trend_info.get('method', '')})"
-    try:
-        return analyse_variogram(prepared.xy, values, lag_count=lag_count, lag_width=lag_width), basis
-    except InputError as exc:
-        log.info("no variogram: %s", exc)
-        return None, basis
 
 
 def description_layers(description: Description) -> dict:
@@ -236,8 +254,10 @@ def description_layers(description: Description) -> dict:
     for column in description.strips.membership.columns:
         points[column] = description.strips.membership[column].to_numpy()
     fit = description.trend
-    points["trend_fitted"] = fit.fitted if fit is not None else np.nan
-    points["trend_residual"] = fit.residual if fit is not None else np.nan
+    # over every row, also when the surface was fitted on a sample (spatial_structure)
+    residual = description.structure.detrended if description.structure is not None else None
+    points["trend_fitted"] = prepared.values - residual if fit is not None else np.nan
+    points["trend_residual"] = residual if fit is not None else np.nan
     trend_rows = [("method", description.trend_info.get("method", "none"))]
     for key in ("variance_explained", "robust_variance_explained", "note"):
         if key in description.trend_info:

@@ -11,6 +11,7 @@ import logging
 import platform
 import time
 from dataclasses import dataclass, field
+from functools import cached_property
 from datetime import datetime, timezone
 
 import geopandas as gpd
@@ -26,11 +27,13 @@ from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation, local_autoco
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
 from .methods.repairs import likely_slips
+from .methods.lagpairs import lag_pair_reasons
 from .methods.strips import flagged_strip_evidence, strip_summary
 from .prepare import Prepared, prepare
 from .verdict import STATUSES, decide, format_length
 
-__all__ = ["ScreenResult", "screen_frame", "screen", "ADDED_COLUMNS", "automatic_max_distance"]
+__all__ = ["ScreenResult", "SpatialStructure", "screen_frame", "screen", "spatial_structure", "ADDED_COLUMNS",
+           "automatic_max_distance", "library_versions", "CAUTION"]
 
 log = logging.getLogger(__name__)
 
@@ -78,7 +81,12 @@ class ScreenResult:
     autocorr : LocalAutocorrelation or None
         Local Moran's I / Gi*.
     artefacts : dict
-        Other method results (for reports and figures).
+        Other method results (``structure``, ``strips``, ``coincident``, ...).
+    config : ScreenConfig or None
+        The options of the screen.
+
+    The :attr:`findings` (every number a report shows) are made from these
+    on first use.
     """
 
     frame: gpd.GeoDataFrame
@@ -90,6 +98,14 @@ class ScreenResult:
     local: LocalResult | None = None
     autocorr: LocalAutocorrelation | None = None
     artefacts: dict = field(default_factory=dict)
+    config: ScreenConfig | None = None
+
+    @cached_property
+    def findings(self):
+        """:class:`pointsift.findings.Findings` of this screen (made once, from the screen's own results)."""
+        from .findings import screen_findings
+
+        return screen_findings(self, self.artefacts["structure"], self.artefacts["strips"])
 
 
 def automatic_max_distance(xy: np.ndarray) -> float:
@@ -110,9 +126,12 @@ def automatic_max_distance(xy: np.ndarray) -> float:
     return float(np.exp(q3 + 3.0 * max(q3 - q1, np.log(2.0))))
 
 
-def _library_versions() -> dict:
-    """Versions of pointsift and the libraries it stands on (read once per process)."""
+def library_versions() -> dict:
+    """Versions of pointsift, Python, the libraries and GDAL (read once per process, without importing the slow ones)."""
     return dict(_installed_versions())
+
+
+_library_versions = library_versions
 
 
 @functools.lru_cache(maxsize=1)
@@ -135,35 +154,58 @@ def _installed_versions() -> dict:
 _TREND_SAMPLE = 20_000
 
 
-def _detrend(prepared: Prepared, mode: str):
-    """Values with the regional trend taken out, for the cluster statistics."""
-    from .methods.trend import regional_trend
+@dataclass(frozen=True)
+class SpatialStructure:
+    """Regional trend, lag-pair screen and variogram of one layer, by one rule for ``screen`` and ``describe``.
 
-    values = np.where(prepared.usable, prepared.values, np.nan)
-    _, residual, info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, mode, sample=_TREND_SAMPLE)
-    return residual, info
+    Attributes
+    ----------
+    trend : TrendSurface, PolishSurface or None
+        The fitted regional trend.
+    detrended : ndarray
+        Values minus the trend (the values when no trend), NaN where unusable.
+    trend_info : dict
+        Method and shares of variance explained (run record).
+    lag_screen : LagPairScreen
+    variogram : VariogramAnalysis or None
+        None when it cannot be computed (the record says why).
+    basis : str
+        What the lag pairs and the variogram were computed on.
+    record : dict
+        ``lag_pairs`` and ``variogram`` entries of the run record.
+    """
+
+    trend: object
+    detrended: np.ndarray
+    trend_info: dict
+    lag_screen: object
+    variogram: object
+    basis: str
+    record: dict
 
 
-def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_info: dict, config: ScreenConfig):
-    """Lag-pair screen and variograms of the values the cluster statistics use (trend residuals when detrended).
+def spatial_structure(prepared: Prepared, *, detrend: str = "auto", lag_count=None, lag_width=None,
+                      seed: int = ScreenConfig.seed) -> SpatialStructure:
+    """Regional trend, then lag pairs and variograms of the trend residuals.
 
-    Returns the :class:`~pointsift.methods.lagpairs.LagPairScreen`, the
-    :class:`~pointsift.methods.variogram.VariogramAnalysis` (None when it
-    cannot be computed) and their ``run_info`` entries. Lag options are read
-    from the config when it has them (``lag_count``, ``lag_width``).
+    ``screen_frame`` and :func:`pointsift.explore.describe` both call this, so
+    the same input and options give the same trend, lag pairs and variogram
+    model in both. The trend is fitted on at most 20,000 points (seeded
+    sample, see :func:`pointsift.methods.trend.regional_trend`).
     """
     from .methods.lagpairs import screen_lag_pairs
+    from .methods.trend import regional_trend
     from .methods.variogram import analyse_variogram, expected_difference_sd, neighbourhood_from_fit
 
+    values = np.where(prepared.usable, prepared.values, np.nan)
+    fit, detrended, trend_info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, detrend,
+                                                sample=_TREND_SAMPLE)
     values = np.where(prepared.usable, detrended, np.nan)
     basis = "values" if trend_info.get("method", "none") == "none" else f"residuals from the trend ({trend_info['method']})"
     variogram = None
     variogram_info = {"values": basis}
     try:
-        variogram = analyse_variogram(
-            prepared.xy, values, lag_count=getattr(config, "lag_count", None),
-            lag_width=getattr(config, "lag_width", None), seed=config.seed,
-        )
+        variogram = analyse_variogram(prepared.xy, values, lag_count=lag_count, lag_width=lag_width, seed=seed)
         variogram_info.update(variogram.run_info())
     except InputError as exc:
         variogram_info["note"] = f"no variogram: {exc}"
@@ -173,20 +215,18 @@ def _lag_pairs_and_variogram(prepared: Prepared, detrended: np.ndarray, trend_in
     # own spread) and the run record says why.
     hint = neighbourhood_from_fit(variogram.fit if variogram is not None else None)
     if hint.distance is not None:
-        fit = hint.fit
-        lag_screen = screen_lag_pairs(
-            prepared.xy, values, ids=prepared.ids, seed=config.seed,
-            distance_scale=lambda h: expected_difference_sd(fit, h),
-        )
+        model = hint.fit
+        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=seed,
+                                      distance_scale=lambda h: expected_difference_sd(model, h))
         scale_note = "pair differences divided by the variogram model's sqrt(2 gamma(h))"
     else:
-        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=config.seed)
+        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=seed)
         scale_note = f"each lag class's own robust spread ({hint.reason})"
-    info = {
+    record = {
         "lag_pairs": {"values": basis, "difference_scale": scale_note, **lag_screen.record},
         "variogram": variogram_info,
     }
-    return lag_screen, variogram, info
+    return SpatialStructure(fit, values, trend_info, lag_screen, variogram, basis, record)
 
 
 def _strips(prepared: Prepared):
@@ -194,12 +234,6 @@ def _strips(prepared: Prepared):
     result = strip_summary(prepared.xy[:, 0], prepared.xy[:, 1], np.where(prepared.usable, prepared.values, np.nan))
     layer = gpd.GeoDataFrame(result.table, geometry="geometry", crs=prepared.work_crs)
     return result, layer
-
-
-def _lag_pair_reasons(lag_screen) -> np.ndarray:
-    from .methods.lagpairs import lag_pair_reasons
-
-    return lag_pair_reasons(lag_screen)
 
 
 def _spatial_tables(lag_screen, variogram, prepared: Prepared) -> dict:
@@ -292,16 +326,19 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         )
 
     t = time.perf_counter()
-    detrended, trend_info = _detrend(prepared, config.detrend)
+    structure = spatial_structure(prepared, detrend=config.detrend, lag_count=config.lag_count,
+                                  lag_width=config.lag_width, seed=config.seed)
+    detrended, trend_info = structure.detrended, structure.trend_info
+    timings["trend_lag_pairs_variogram_s"] = time.perf_counter() - t
+
+    t = time.perf_counter()
     judged = prepared.usable & ~too_few
     autocorr = local_autocorrelation(
         np.where(judged, detrended, np.nan), graph, permutations=config.permutations, seed=config.seed
     )
     timings["local_autocorrelation_s"] = time.perf_counter() - t
 
-    t = time.perf_counter()
-    lag_screen, variogram, spatial_info = _lag_pairs_and_variogram(prepared, detrended, trend_info, config)
-    timings["lag_pairs_variogram_s"] = time.perf_counter() - t
+    lag_screen, variogram, spatial_info = structure.lag_screen, structure.variogram, structure.record
 
     t = time.perf_counter()
     strips, strip_layer = _strips(prepared)
@@ -332,7 +369,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         autocorr=autocorr,
         coincident=coincident,
         config=config,
-        supporting=(_lag_pair_reasons(lag_screen), flagged_strip_evidence(strips, prepared.n)),
+        supporting=(lag_pair_reasons(lag_screen), flagged_strip_evidence(strips, prepared.n)),
     )
     timings["verdict_s"] = time.perf_counter() - t
 
@@ -422,7 +459,9 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         graph=graph,
         local=local,
         autocorr=autocorr,
+        config=config,
         artefacts={
+            "structure": structure,
             "coincident": coincident,
             "detrended": detrended,
             "lag_pairs": lag_screen,

@@ -80,6 +80,13 @@ class LocalAutocorrelation:
         Permutations behind each p-value (more at the floor).
     kernel : str
         How the draws were made (``"shared draws"``).
+    standardized : ndarray or None
+        ``z = (v - mean) / sd`` over the rows used (sd with ``n``
+        denominator), NaN elsewhere: the x axis of the Moran scatter.
+    neighbour_mean : ndarray or None
+        Mean of the neighbours' ``z`` (row-standardized weights), NaN where a
+        point has no used neighbour: the y axis of the Moran scatter
+        (Anselin 1996); ``(standardized, neighbour_mean)`` gives the quadrant.
     """
 
     moran_i: np.ndarray
@@ -89,6 +96,8 @@ class LocalAutocorrelation:
     p_adjusted: np.ndarray
     permutations: np.ndarray
     kernel: str
+    standardized: np.ndarray | None = None
+    neighbour_mean: np.ndarray | None = None
 
 
 def benjamini_hochberg(p: np.ndarray) -> np.ndarray:
@@ -268,4 +277,9 @@ def local_autocorrelation(
     gi_z[target] = gi[rows]
     p_value[target] = np.minimum(p, 1.0)
     perms[target] = draws
-    return LocalAutocorrelation(moran, quadrant, gi_z, p_value, benjamini_hochberg(p_value), perms, "shared draws")
+    standardized = np.full(n_all, np.nan)
+    neighbour_mean = np.full(n_all, np.nan)
+    standardized[used] = np.where(has, z, np.nan)
+    neighbour_mean[used] = lag
+    return LocalAutocorrelation(moran, quadrant, gi_z, p_value, benjamini_hochberg(p_value), perms, "shared draws",
+                                standardized, neighbour_mean)

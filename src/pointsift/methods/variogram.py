@@ -691,7 +691,7 @@ def anisotropy_hint(fits, ratio: float = ANISOTROPY_RATIO) -> dict:
     out = {"hint": False, "ratio": None, "major_direction": None, "minor_direction": None,
            "ranges": {d: float(r) for d, r in usable.items()}, "threshold": float(ratio)}
     if len(usable) < 2:
-        out["text"] = (f"{len(usable)} direction(s) with a trustworthy fit; anisotropy cannot be judged.")
+        out["text"] = (f"{len(usable)} direction{'' if len(usable) == 1 else 's'} with a trustworthy fit; anisotropy cannot be judged.")
         return out
     major = max(usable, key=usable.get)
     minor = min(usable, key=usable.get)

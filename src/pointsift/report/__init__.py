@@ -3,7 +3,8 @@
 :func:`build_report` takes a screen (:class:`~pointsift.pipeline.ScreenResult`)
 or a prepared layer from ``describe`` and returns a :class:`Report`: the page
 (:attr:`Report.html`) and the summary document (:attr:`Report.summary`,
-validated by ``summary.schema.json`` in this package). The page works
+validated by ``summary.schema.json`` in this package). It computes nothing: every
+number is the run's own (:class:`pointsift.findings.Findings`). The page works
 offline and alone: figures are inline PNGs, styles and the small sorting
 script are inline, and nothing is fetched from a network.
 
@@ -120,44 +121,36 @@ def _write_text(path, text: str, protect: tuple) -> Path:
 def build_report(
     result=None,
     *,
-    prepared=None,
-    run_info: dict | None = None,
     description=None,
-    lag_pairs=None,
-    variogram=None,
-    bin_width: float | None = None,
+    run_info: dict | None = None,
     max_points: int = 50_000,
-    max_labels: int = 40,
+    max_labels: int = 80,
     seed: int = 0,
     title: str | None = None,
 ) -> Report:
-    """Build the report of a screen, or of a described layer.
+    """Build the report of a screen, or of a described layer, from its findings.
+
+    Nothing is computed here: the numbers are the run's own
+    (``result.findings`` or ``description.findings``), so the page, the JSON
+    and the GeoPackage agree.
 
     Parameters
     ----------
     result : ScreenResult, optional
         A screen. Gives every section.
-    prepared : Prepared, optional
-        Without a screen: the prepared layer (``describe``). When its frame
-        already holds ``screen_status``, ``screen_score`` and
-        ``expected_value`` (a pointsift output), the map and the table use them.
+    description : Description, optional
+        Without a screen: a description (``pointsift describe``); with a
+        screen of its own (``describe(..., screen=result)``) it gives every
+        section too.
     run_info : dict, optional
         Run record; ``result.run_info`` by default.
-    description : Description, optional
-        The exploratory description; computed when omitted.
-    lag_pairs, variogram : optional
-        Results already computed (:class:`~pointsift.methods.lagpairs.LagPairScreen`,
-        :class:`~pointsift.methods.variogram.VariogramAnalysis`); computed with
-        the defaults when None; ``False`` leaves the section out.
-    bin_width : float, optional
-        Histogram bin width (``describe --bin-width``); Freedman-Diaconis by default.
     max_points : int
         Maps and clouds draw at most about this many points (density shading
         or a stated seeded sample beyond; tables keep every row).
     max_labels : int
         Suspects labelled by id on the map (strongest first).
     seed : int
-        Seed of the drawing samples and of the pair subsampling.
+        Seed of the drawing samples.
     title : str, optional
         Page title (default from the value column and the input).
 
@@ -168,50 +161,22 @@ def build_report(
     Raises
     ------
     ConfigError
-        When neither a result nor a prepared layer is given.
+        When neither a result nor a description is given.
     """
     from ..errors import ConfigError
+    from ..pipeline import CAUTION, library_versions
 
-    if result is None and prepared is None:
-        raise ConfigError("build_report needs a screen result or a prepared layer; pass result= or prepared=.")
-    status = score = expected = strips = None
-    if result is not None:
-        prepared = result.prepared
-        run_info = result.run_info if run_info is None else run_info
-        command = "screen"
-        # use what the screen computed (and wrote to its GeoPackage) rather than computing it again
-        made = result.artefacts
-        if lag_pairs is None and made.get("lag_pairs") is not None:
-            lag_pairs = made["lag_pairs"]
-        if variogram is None and "variogram" in made:
-            variogram = made["variogram"] if made["variogram"] is not None else False
-        if description is None:  # a description brings its own strips (describe's --strips options)
-            strips = made.get("strips")
+    if result is None and description is None:
+        raise ConfigError("build_report needs a screen result or a description; pass result= or description=.")
+    if description is not None:
+        findings = description.findings
+        if run_info is None and description.screen is not None:
+            run_info = description.screen.run_info
     else:
-        command = "describe"
-        frame = prepared.frame
-        if {"screen_status", "screen_score"} <= set(frame.columns):
-            status = frame["screen_status"].astype(object).to_numpy()
-            score = frame["screen_score"].to_numpy(dtype=float)
-            expected = frame["expected_value"].to_numpy(dtype=float) if "expected_value" in frame else None
-    collected = collect(
-        prepared=prepared,
-        run_info=dict(run_info or {}),
-        command=command,
-        result=result,
-        description=description,
-        status=status,
-        score=score,
-        expected=expected,
-        lag_pairs=lag_pairs,
-        variogram=variogram,
-        strips=strips,
-        bin_width=bin_width,
-        max_points=max_points,
-        max_labels=max_labels,
-        seed=seed,
-        title=title,
-    )
+        findings = result.findings
+        run_info = result.run_info if run_info is None else run_info
+    collected = collect(findings, run_info=dict(run_info or {}), max_points=max_points, max_labels=max_labels, seed=seed,
+                        title=title, versions=library_versions(), caution=CAUTION)
     return Report(html=render(collected.summary, collected.figures), summary=collected.summary, figures=collected.figures)
 
 

@@ -26,7 +26,7 @@ __all__ = [
     "marker_svg",
     "nice_length",
     "grid_north_offset",
-    "neighbour_mean_scatter",
+    "new_figure",
     "plot_status_map",
     "plot_residual_map",
     "plot_neighbour_scatter",
@@ -45,22 +45,42 @@ STATUS_STYLE = {
 
 #: Resolution of the inline PNGs (dots per inch).
 DPI = 150
+#: Width of every report figure (inches). With 9-10 point text, a figure shrunk to a 390 px phone keeps
+#: its letters about 9-10 CSS pixels high; wider figures would shrink them below reading size.
+WIDTH = 5.2
 
 
-def _figure(width: float, height: float):
+def new_figure(width: float, height: float):
+    """A matplotlib figure (Agg, constrained layout) of ``width`` x ``height`` inches."""
     import matplotlib
 
     matplotlib.use("Agg")
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
-    return Figure(figsize=(width, height), layout="constrained")
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasAgg(fig)  # a real canvas: label placement measures text as drawn
+    return fig
+
+
 
 
 def figure_png_bytes(fig, dpi: int = DPI) -> bytes:
-    """The figure as PNG bytes (white background, ``dpi`` dots per inch)."""
+    """The figure as a 256-colour PNG (white background, ``dpi`` dots per inch).
+
+    Charts use few colours, so a palette image keeps every line and letter
+    while taking a third to a fifth of the bytes of a full-colour one (the
+    report stays small enough to mail).
+    """
+    from PIL import Image
+
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=dpi, facecolor="white")
-    return buffer.getvalue()
+    image = Image.open(io.BytesIO(buffer.getvalue())).convert("RGB")
+    small = image.quantize(colors=256, method=Image.Quantize.MEDIANCUT, dither=Image.Dither.NONE)
+    out = io.BytesIO()
+    small.save(out, format="PNG", optimize=True, dpi=(dpi, dpi))
+    return out.getvalue()
 
 
 def figure_data_uri(fig, dpi: int = DPI) -> str:
@@ -106,10 +126,9 @@ def nice_length(span: float, fraction: float = 0.2) -> float:
 
 
 def _length_words(metres: float) -> str:
-    if metres >= 1000.0:
-        km = metres / 1000.0
-        return f"{km:g} km"
-    return f"{metres:g} m"
+    from .numbers import format_length
+
+    return format_length(metres)
 
 
 def grid_north_offset(work_crs, x: float, y: float) -> float | None:
@@ -174,7 +193,7 @@ def _decorate_map(ax, xy_km: np.ndarray, crs_label: str, north_note: str) -> Non
                 arrowprops={"arrowstyle": "-|>,head_width=0.45,head_length=0.9", "color": "#1a1a1a", "lw": 1.6}, zorder=7)
     ax.text(0.95, 0.82, "N", transform=ax.transAxes, ha="center", va="top", fontsize=11, fontweight="bold", zorder=7)
     if north_note:
-        ax.text(0.99, 0.005, north_note, transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color="#444444")
+        ax.text(0.99, 0.005, north_note, transform=ax.transAxes, ha="right", va="bottom", fontsize=8, color="#444444")
 
 
 def _north_note(north_offset: float | None) -> str:
@@ -183,33 +202,70 @@ def _north_note(north_offset: float | None) -> str:
     return f"arrow: grid north; true north differs by {abs(north_offset):.2f}\N{DEGREE SIGN} here"
 
 
-def plot_status_map(
-    xy,
-    status,
-    ids,
-    score,
-    *,
-    crs_label: str,
-    north_offset: float | None = None,
-    max_points: int = 50_000,
-    max_labels: int = 40,
-    words: dict | None = None,
-    title: str = "Points by screening status",
-):
-    """Map of the points coloured and shaped by status, suspects labelled by id.
+_SHADE = ("#f6f6ef", "#d9e2cf", "#a9c1a1", "#6f9477", "#3f6650")
+#: Points the value shading is interpolated between, at most (seeded sample beyond).
+SHADE_POINTS = 20_000
+
+
+def _shade_values(ax, fig, km: np.ndarray, values: np.ndarray, status, value_label: str, seed: int = 0) -> dict:
+    """Values as light filled contours behind the markers (linear between points), with a colour bar.
+
+    Suspect values are left out (they are probably wrong) and the colour
+    range spans the 2nd to 98th percentile, so one wild value cannot wash
+    the map out. Triangles much longer than the usual spacing (across a gap
+    in the network) are not shaded.
+    """
+    from matplotlib.colors import LinearSegmentedColormap
+    from matplotlib.tri import Triangulation
+
+    keep = np.isfinite(values) & np.isfinite(km).all(axis=1)
+    if status is not None:
+        keep &= np.isin(status, ("ok", "review"))
+    rows = np.flatnonzero(keep)
+    record = {"shading": False, "shading_points": int(rows.size), "shading_sample_seed": None}
+    if rows.size > SHADE_POINTS:
+        rows = np.sort(np.random.default_rng(seed).choice(rows, SHADE_POINTS, replace=False))
+        record["shading_sample_seed"] = int(seed)
+    distinct = np.unique(km[rows], axis=0, return_index=True)[1]
+    rows = rows[np.sort(distinct)]
+    if rows.size < 4:
+        return record
+    try:
+        tri = Triangulation(km[rows, 0], km[rows, 1])
+    except (RuntimeError, ValueError):  # collinear points: no surface to shade
+        return record
+    edges = np.hypot(*(km[rows][tri.triangles] - km[rows][np.roll(tri.triangles, 1, axis=1)]).transpose(2, 0, 1))
+    longest = edges.max(axis=1)
+    tri.set_mask(longest > 3.0 * np.median(longest))
+    lo, hi = np.percentile(values[rows], [2, 98])
+    if not hi > lo:
+        return record
+    levels = np.linspace(lo, hi, 9)
+    cmap = LinearSegmentedColormap.from_list("levels", _SHADE)
+    art = ax.tricontourf(tri, np.clip(values[rows], lo, hi), levels=levels, cmap=cmap, zorder=1, extend="neither")
+    bar = fig.colorbar(art, ax=ax, shrink=0.75, pad=0.01, aspect=30)
+    bar.set_label(f"{value_label} (units of the data), shading", fontsize=9)
+    bar.ax.tick_params(labelsize=8)
+    from .numbers import format_number
+
+    bar.set_ticks(levels[::2], labels=[format_number(float(v)) for v in levels[::2]])
+    record.update(shading=True, shading_range=[float(lo), float(hi)])
+    return record
+
+
+def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", north_offset: float | None = None,
+                    max_points: int = 50_000, max_labels: int = 80, seed: int = 0):
+    """Map of the values (light shading) with the points on top by status, suspects labelled by id.
 
     Parameters
     ----------
-    xy : ndarray, shape (n, 2)
-        Work-CRS coordinates in metres (NaN rows are not drawn).
-    status : ndarray of str
-        ``suspect``, ``review``, ``ok`` or ``unscreened`` per row.
-    ids : ndarray of str
-        Labels of the points.
-    score : ndarray of float
-        Screen score (the strongest suspects get labels first).
+    map_data : pointsift.findings.MapData
+        Work-CRS coordinates in metres, values, ids, and (after a screen)
+        status and score; without a status every usable point is a dot.
     crs_label : str
         Name of the work CRS for the axis labels.
+    value_label : str
+        The value column (colour bar title).
     north_offset : float, optional
         Meridian convergence at the centre (degrees), stated under the map.
     max_points : int
@@ -217,29 +273,32 @@ def plot_status_map(
         density shading (hexagonal bins) instead of single markers; flagged
         points are always drawn one by one.
     max_labels : int
-        Most suspects labelled (strongest first).
-    words : dict, optional
-        Legend words replacing the status words (e.g. for a layer that was
-        not screened).
-    title : str
-        Figure title.
+        Most suspects labelled (strongest first); labels never overlap each
+        other where a free place exists (:func:`pointsift.report.labels.place_labels`).
 
     Returns
     -------
     (matplotlib.figure.Figure, dict)
         The figure and a record of what was drawn: ``drawn`` per status,
-        ``shaded`` (rows shown as density), ``labelled``.
+        ``shaded`` (rows shown as density), ``labelled``, the shading.
     """
-    from matplotlib import patheffects
+    from .labels import place_labels
 
-    xy = np.asarray(xy, dtype=float)
-    status = np.asarray(status, dtype=object)
-    score = np.asarray(score, dtype=float)
+    xy = np.asarray(map_data.xy, dtype=float)
+    n = xy.shape[0]
+    values = np.asarray(map_data.values, dtype=float)
+    screened = map_data.status is not None
+    status = (np.asarray(map_data.status, dtype=object) if screened
+              else np.where(np.isfinite(values), "ok", "unscreened").astype(object))
+    score = np.asarray(map_data.score, dtype=float) if map_data.score is not None else np.full(n, np.nan)
+    words = None if screened else {"ok": "has a value", "unscreened": "no usable value"}
+    ids = np.asarray(map_data.ids, dtype=object)
     km = xy / 1000.0
     located = np.isfinite(km).all(axis=1)
-    fig = _figure(*_map_size(km, 8.6, 1.0))
+    fig = new_figure(*_map_size(km, WIDTH, 1.1))
     ax = fig.add_subplot()
     record = {"drawn": {}, "shaded": {}, "labelled": 0, "max_points": int(max_points), "unlocated": int((~located).sum())}
+    record.update(_shade_values(ax, fig, km, values, map_data.status, value_label, seed))
     for name in STATUS_ORDER:
         style = STATUS_STYLE[name]
         rows = np.flatnonzero((status == name) & located)
@@ -250,33 +309,32 @@ def plot_status_map(
         if name in ("ok", "unscreened") and rows.size > max_points:
             from matplotlib.colors import LinearSegmentedColormap
 
-            # light shades of the status colour, so the flagged markers stay on top visually
             light = LinearSegmentedColormap.from_list(name, ["#f2f6fa", style["colour"]])
             cells = int(np.clip(np.sqrt(rows.size / 12.0), 30, 90))
-            ax.hexbin(km[rows, 0], km[rows, 1], gridsize=cells, mincnt=1, cmap=light, linewidths=0, alpha=0.55,
-                      zorder=2)
-            ax.scatter([], [], marker="h", c=style["colour"], alpha=0.45, s=60, label=f"{count_label}, shown as density")
+            ax.hexbin(km[rows, 0], km[rows, 1], gridsize=cells, mincnt=1, cmap=light, linewidths=0, alpha=0.45, zorder=2)
+            ax.scatter([], [], marker="h", c=style["colour"], alpha=0.45, s=60, label=f"{count_label}, as density")
             record["shaded"][name] = int(rows.size)
             continue
         edge = style["edge"]
-        kwargs = {"edgecolors": edge, "linewidths": 0.6} if edge != "none" and style["marker"] != "x" else {"linewidths": 1.0 if style["marker"] == "x" else 0}
-        alpha = 0.75 if name == "ok" else 1.0
-        ax.scatter(km[rows, 0], km[rows, 1], marker=style["marker"], c=style["colour"], s=style["size"], alpha=alpha,
-                   label=count_label, zorder={"ok": 3, "unscreened": 4, "review": 5, "suspect": 6}[name], **kwargs)
+        kwargs = ({"edgecolors": edge, "linewidths": 0.6} if edge != "none" and style["marker"] != "x"
+                  else {"linewidths": 1.0 if style["marker"] == "x" else 0})
+        ax.scatter(km[rows, 0], km[rows, 1], marker=style["marker"], c=style["colour"],
+                   s=style["size"] * (0.6 if name == "ok" else 1.0), alpha=0.7 if name == "ok" else 1.0, label=count_label,
+                   zorder={"ok": 3, "unscreened": 4, "review": 5, "suspect": 6}[name], **kwargs)
         record["drawn"][name] = int(rows.size)
-    suspects = np.flatnonzero((status == "suspect") & located)
-    if suspects.size:
-        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))][:max_labels]
-        halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
-        for row in order:
-            ax.annotate(str(ids[row]), (km[row, 0], km[row, 1]), xytext=(5, 4), textcoords="offset points", fontsize=7,
-                        color="#7a2a00", path_effects=halo, zorder=8)
-        record["labelled"] = int(order.size)
     _decorate_map(ax, km, crs_label, _north_note(north_offset))
     if ax.get_legend_handles_labels()[0]:
-        ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.005), ncols=4, fontsize=8, frameon=False, borderaxespad=0.2,
-                  handletextpad=0.3, columnspacing=1.2)
-    fig.suptitle(title, fontsize=11)
+        ax.legend(loc="lower left", bbox_to_anchor=(0.0, 1.005), ncols=2 if screened else 2, fontsize=9,
+                  frameon=False, borderaxespad=0.2, handletextpad=0.3, columnspacing=1.2)
+    fig.suptitle("Values shaded, points by screening status" if screened else "Values shaded (described, not screened)",
+                 fontsize=11)
+    suspects = np.flatnonzero((status == "suspect") & located)
+    if suspects.size and screened:
+        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))][:max_labels]
+        review = np.flatnonzero((status == "review") & located)
+        placed = place_labels(ax, km[order], [str(ids[r]) for r in order], obstacles_xy=km[np.concatenate([suspects, review])])
+        record.update(labelled=placed["labelled"], labels_with_leader=placed["with_leader"],
+                      labels_overlapping=placed["overlapping"])
     return fig, record
 
 
@@ -317,7 +375,7 @@ def plot_residual_map(
         rows = np.sort(np.concatenate([flagged, picked]))
         record.update(drawn=int(rows.size), sample_seed=int(seed))
     order = rows[np.argsort(np.abs(z[rows]), kind="stable")]  # strongest drawn last, on top
-    fig = _figure(*_map_size(km, 9.4, 2.4))
+    fig = new_figure(*_map_size(km, WIDTH, 1.3))
     ax = fig.add_subplot()
     lim = max(float(limit), 1.0)
     size = 6.0 + 10.0 * np.clip(np.abs(z[order]), 0, lim)
@@ -325,7 +383,7 @@ def plot_residual_map(
                      norm=TwoSlopeNorm(vcenter=0.0, vmin=-lim, vmax=lim), s=size, edgecolors="#333333",
                      linewidths=0.15, zorder=3)
     bar = fig.colorbar(art, ax=ax, shrink=0.8, extend="both")
-    bar.set_label("standardized local residual (robust sd; value minus expected)")
+    bar.set_label("local residual (robust sd)", fontsize=9)
     unjudged = np.flatnonzero(~np.isfinite(z) & np.isfinite(km).all(axis=1))
     if unjudged.size:
         shown = unjudged if unjudged.size <= max_points else np.sort(
@@ -334,57 +392,11 @@ def plot_residual_map(
                    label=f"not judged ({unjudged.size:,})")
         ax.legend(loc="upper left", fontsize=8)
     _decorate_map(ax, km, crs_label, _north_note(north_offset))
-    title = "Local residuals: orange above, purple below what the neighbours predict"
+    title = "Local residuals: orange above,\npurple below the neighbours' prediction"
     if record["sample_seed"] is not None:
         title += f"\n{record['drawn']:,} of {record['points']:,} points drawn (seeded sample, every flagged point kept)"
     ax.set_title(title, fontsize=10)
     return fig, record
-
-
-def neighbour_mean_scatter(values, indices, judged):
-    """Standardized values and the mean of their neighbours' standardized values.
-
-    The same standardization as :func:`pointsift.methods.autocorr.local_autocorrelation`:
-    over the judged rows, ``z = (v - mean) / sd`` (sd with ``n``
-    denominator); the neighbour mean uses only judged neighbours
-    (row-standardized weights), so ``(z, lag)`` gives the Local Moran
-    quadrant of each point (Anselin 1995, *Geographical Analysis* 27,
-    93-115; the scatter itself: Anselin 1996, in *Spatial Analytical
-    Perspectives on GIS*).
-
-    Parameters
-    ----------
-    values : ndarray, shape (n,)
-        Values the cluster statistics used (trend removed by the screen).
-    indices : ndarray of int, shape (n, m)
-        Neighbour rows, ``-1`` padded (:attr:`pointsift.graph.NeighbourGraph.indices`).
-    judged : ndarray of bool, shape (n,)
-        Rows the statistics judged.
-
-    Returns
-    -------
-    (ndarray, ndarray)
-        ``z`` and ``lag`` per row; NaN for rows not judged or with no judged neighbour.
-    """
-    values = np.asarray(values, dtype=float)
-    judged = np.asarray(judged, dtype=bool) & np.isfinite(values)
-    n = values.size
-    z = np.full(n, np.nan)
-    lag = np.full(n, np.nan)
-    y = values[judged]
-    if y.size < 2:
-        return z, lag
-    sd = y.std()
-    z[judged] = (y - y.mean()) / sd if sd > 0 else 0.0
-    idx = np.asarray(indices)
-    ok = idx >= 0
-    ok[ok] = judged[idx[ok]]
-    neighbour_z = np.where(ok, z[np.where(ok, idx, 0)], 0.0)
-    k = ok.sum(axis=1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        lag = np.where(judged & (k > 0), neighbour_z.sum(axis=1) / np.maximum(k, 1), np.nan)
-    z = np.where(np.isfinite(lag), z, np.nan)
-    return z, lag
 
 
 def plot_neighbour_scatter(z, lag, status, *, quadrant_counts: dict, slope: float, max_points: int = 50_000, seed: int = 0):
@@ -405,7 +417,7 @@ def plot_neighbour_scatter(z, lag, status, *, quadrant_counts: dict, slope: floa
         picked = np.random.default_rng(seed).choice(others, size=max(0, min(max_points - flagged.size, others.size)), replace=False)
         rows = np.sort(np.concatenate([flagged, picked]))
         record.update(drawn=int(rows.size), sample_seed=int(seed))
-    fig = _figure(7.0, 7.2)
+    fig = new_figure(WIDTH, 5.8)
     ax = fig.add_subplot()
     ax.axhline(0, color="#555555", lw=0.8, zorder=1)
     ax.axvline(0, color="#555555", lw=0.8, zorder=1)
