@@ -370,3 +370,25 @@ def test_plain_parquet_and_library_text_in_messages(tmp_path):
     assert "SELECT" not in message and "prefix the file path" not in message and "Use pandas" not in message
     assert "looks damaged (database disk image is malformed)" in message  # SQLite's own words for it
     assert "Restore the file from a backup or export the layer again" in message
+
+
+def test_measured_points_keep_their_m_values(tmp_path):
+    # Issue 10, item 18: M values were dropped from the output with a raw warning.
+    import warnings
+
+    import geopandas as gpd
+    import shapely
+
+    wells = build_wells(20, seed=4)
+    measured = shapely.from_wkt([f"POINT M ({p.x} {p.y} {i})" for i, p in enumerate(wells.geometry)])
+    path = tmp_path / "m.gpkg"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the fixture's own write
+        pyogrio.write_dataframe(wells.set_geometry(gpd.GeoSeries(measured, crs=wells.crs)), path, layer="w", use_arrow=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no raw library warning reaches the user
+        gdf, _ = psio.read_points(path)
+        out = psio.write_geopackage(tmp_path / "out.gpkg", {"screened": gdf})
+    back = pyogrio.read_dataframe(out, layer="screened", use_arrow=True)  # Reference: pyogrio through Arrow keeps M
+    assert shapely.has_m(back.geometry.array).all()
+    assert shapely.get_m(back.geometry.array).tolist() == list(range(20))

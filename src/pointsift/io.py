@@ -154,8 +154,12 @@ def list_layers(path: str | os.PathLike) -> list[str]:
     import pyogrio
 
     path = _existing(path)
+    import warnings
+
     try:
-        return [str(name) for name in pyogrio.list_layers(path)[:, 0]]
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message=".*Measured \\(M\\) geometry.*")  # read_points keeps M
+            return [str(name) for name in pyogrio.list_layers(path)[:, 0]]
     except Exception as exc:  # pyogrio raises its own DataSourceError types
         raise _read_problem(path, "the list of layers", exc) from exc
 
@@ -235,7 +239,7 @@ def read_points(
     try:
         # keep GeoPackage feature ids (a layer edited in a GIS has gaps): the
         # output writes them back, so the flag layer joins to the input by fid
-        frame = pyogrio.read_dataframe(path, layer=layer, use_arrow=False, fid_as_index=suffix == ".gpkg")
+        frame = _read_layer(pyogrio, path, layer, suffix == ".gpkg")
         if suffix == ".gpkg":
             frame.index.name = _FEATURE_ID
     except Exception as exc:
@@ -247,6 +251,24 @@ def read_points(
         gdf, columns = _points_from_columns(plain, x, y, crs, f"{path}:{layer}", thousands)
         return gdf, SourceInfo(str(path), layer, driver, sha, columns)
     return frame, SourceInfo(str(path), layer, driver, sha)
+
+
+def _read_layer(pyogrio, path: Path, layer, fid_as_index: bool):
+    """Read a layer; measured (M) geometries are read through Arrow, which keeps the M values."""
+    import warnings
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        frame = pyogrio.read_dataframe(path, layer=layer, use_arrow=False, fid_as_index=fid_as_index)
+    measured = [w for w in caught if "Measured (M) geometry" in str(w.message)]
+    for other in caught:
+        if other not in measured:
+            warnings.warn_explicit(other.message, other.category, other.filename, other.lineno)
+    if measured:
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message=".*Measured \\(M\\) geometry.*")
+            frame = pyogrio.read_dataframe(path, layer=layer, use_arrow=True, fid_as_index=fid_as_index)
+    return frame
 
 
 def _read_parquet(path: Path, x, y, crs, sha: str, thousands):
@@ -568,6 +590,8 @@ def write_geopackage(
         with warnings.catch_warnings():
             # the temporary file's suffix is not .gpkg on purpose (see PARTIAL_SUFFIX)
             warnings.filterwarnings("ignore", message=".*(extension should be|non conformant file extension).*", category=RuntimeWarning)
+            # measured points: GDAL records the M hint itself (the M values are written)
+            warnings.filterwarnings("ignore", message=".*does contain geometries with M.*", category=RuntimeWarning)
             for name, frame in layers.items():
                 _write_layer(pyogrio, temporary, name, frame, descriptions.get(name))
         _move_into_place(temporary, out_path, overwrite)
