@@ -17,11 +17,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import geopandas as gpd
-import numpy as np
 import pandas as pd
 
-from .errors import InputError, OutputError
-from .prepare import LOCATION_REASONS, READ_NOTES, _numbers_from_text, comma_convention
+from .errors import InputError, OutputError, plain_library_text
+from .tables import LOCATION_REASONS, READ_NOTES, free_name, points_from_columns, read_csv
 
 __all__ = [
     "SourceInfo",
@@ -32,6 +31,8 @@ __all__ = [
     "remove_stale_partials",
     "SCREENED_LAYER",
     "PARTIAL_SUFFIX",
+    "LOCATION_REASONS",
+    "READ_NOTES",
 ]
 
 log = logging.getLogger(__name__)
@@ -45,23 +46,6 @@ SCREENED_LAYER = "screened"
 _VECTOR_SUFFIXES = {".gpkg": "GeoPackage", ".shp": "ESRI Shapefile", ".geojson": "GeoJSON", ".json": "GeoJSON", ".fgb": "FlatGeobuf"}
 _CSV_SUFFIXES = {".csv", ".txt", ".tsv"}
 _PARQUET_SUFFIXES = {".parquet", ".geoparquet", ".pq"}
-
-# Pairs of coordinate column names recognised in tables, in order of preference
-# (compared case-insensitively). Common practice in exported well databases.
-_COORDINATE_PAIRS = (
-    ("x", "y"),
-    ("lon", "lat"),
-    ("long", "lat"),
-    ("lng", "lat"),
-    ("longitude", "latitude"),
-    ("easting", "northing"),
-    ("east", "north"),
-    ("x_coord", "y_coord"),
-    ("xcoord", "ycoord"),
-    ("coord_x", "coord_y"),
-    ("point_x", "point_y"),
-)
-
 
 @dataclass(frozen=True)
 class SourceInfo:
@@ -117,27 +101,8 @@ def file_sha256(path: str | os.PathLike) -> str:
 _DAMAGED = ("malformed", "not a database", "file is encrypted", "corrupt", "invalid page", "checksum", "truncated", "unexpected end")
 
 
-def _plain(exc: BaseException, path=None) -> str:
-    """A library's error text without what means nothing to the user: SQL statements,
-    advice about the library's own API, driver prefixes, the path again; one line."""
-    text = " ".join(str(exc).split())
-    if path is not None:
-        for form in (f"'{path}'", f'"{path}"', str(path)):
-            text = text.replace(form, "the file")
-    if " failed: " in text:  # "sqlite3_prepare_v2(SELECT ...) failed: why": keep only why
-        text = text.rsplit(" failed: ", 1)[1]
-    parts = [p.strip() for p in text.split(";")]
-    text = "; ".join(dict.fromkeys(p for p in parts if p))  # "why; why" once
-    for marker in (" Use pandas.", " Use ", "It might help to specify", "prefix the file path", " SQL:", "SELECT ", "INSERT ", "CREATE ", "PRAGMA "):
-        cut = text.find(marker)
-        if cut > 0:
-            text = text[:cut]
-    text = text.rstrip(" .:;,")
-    return (text[:200] + "...") if len(text) > 200 else (text or type(exc).__name__)
-
-
 def _read_problem(path, what: str, exc: BaseException) -> InputError:
-    plain = _plain(exc, path)
+    plain = plain_library_text(exc, path)
     if any(word in plain.lower() for word in _DAMAGED):
         return InputError(
             f"Cannot open {str(path)!r}: it looks damaged ({plain}), so {what} cannot be read. "
@@ -218,8 +183,8 @@ def read_points(
     suffix = path.suffix.lower()
     sha = file_sha256(path)
     if suffix in _CSV_SUFFIXES:
-        frame = _read_csv(path)
-        gdf, columns = _points_from_columns(frame, x, y, crs, str(path), thousands)
+        frame = read_csv(path)
+        gdf, columns = points_from_columns(frame, x, y, crs, str(path), thousands)
         return gdf, SourceInfo(str(path), None, "CSV", sha, columns)
     if suffix in _PARQUET_SUFFIXES:
         return _read_parquet(path, x, y, crs, sha, thousands)
@@ -248,7 +213,7 @@ def read_points(
     if not isinstance(frame, gpd.GeoDataFrame) or frame.geometry.name not in frame.columns or _all_missing_geometry(frame):
         # an attribute table: build points from coordinate columns
         plain = pd.DataFrame(frame.drop(columns=[frame.geometry.name]) if isinstance(frame, gpd.GeoDataFrame) and "geometry" in frame.columns else frame)
-        gdf, columns = _points_from_columns(plain, x, y, crs, f"{path}:{layer}", thousands)
+        gdf, columns = points_from_columns(plain, x, y, crs, f"{path}:{layer}", thousands)
         return gdf, SourceInfo(str(path), layer, driver, sha, columns)
     return frame, SourceInfo(str(path), layer, driver, sha)
 
@@ -282,7 +247,7 @@ def _read_parquet(path: Path, x, y, crs, sha: str, thousands):
             plain = pd.read_parquet(path)
         except Exception as inner:
             raise _read_problem(path, "the Parquet table", inner) from inner
-        gdf, columns = _points_from_columns(plain, x, y, crs, str(path), thousands)
+        gdf, columns = points_from_columns(plain, x, y, crs, str(path), thousands)
         return gdf, SourceInfo(str(path), None, "Parquet", sha, columns)
     except Exception as exc:
         raise _read_problem(path, "the GeoParquet table", exc) from exc
@@ -291,139 +256,6 @@ def _read_parquet(path: Path, x, y, crs, sha: str, thousands):
 
 def _all_missing_geometry(frame) -> bool:
     return isinstance(frame, gpd.GeoDataFrame) and len(frame) > 0 and frame.geometry.isna().all() and frame.crs is None
-
-
-def _leading_comment_lines(path: Path, encoding: str) -> int:
-    """Number of lines at the top of a text file that start with '#' (comments)."""
-    count = 0
-    with open(path, encoding=encoding, errors="replace", newline="") as handle:
-        for line in handle:
-            if not line.lstrip("\ufeff").startswith("#"):
-                break
-            count += 1
-    return count
-
-
-def _header_names(path: Path, sep, encoding: str, skip: int) -> list[str]:
-    """The header row exactly as written (pandas renames repeated names to 'name.1')."""
-    header = pd.read_csv(path, sep=sep, engine="python", encoding=encoding, skiprows=skip, header=None, nrows=1,
-                         skipinitialspace=True, dtype=str, keep_default_na=False)
-    return [str(v) for v in header.iloc[0].tolist()] if len(header) else []
-
-
-def _read_csv_as(path: Path, sep, encoding: str) -> pd.DataFrame:
-    skip = _leading_comment_lines(path, encoding)
-    names = _header_names(path, sep, encoding, skip)
-    repeated = sorted({name for name in names if names.count(name) > 1})
-    if repeated:
-        raise InputError(
-            f"{str(path)!r} has {len(repeated)} column name(s) used more than once: "
-            f"{', '.join(repr(n) for n in repeated)}. Rename the repeated columns in the file's header so each name is unique."
-        )
-    # let pandas infer types; bad values are prepare's job (unscreened rows), never a crash
-    frame = pd.read_csv(path, sep=sep, engine="python" if sep is None else "c", skipinitialspace=True,
-                        encoding=encoding, skiprows=skip)
-    if skip:
-        frame.attrs[READ_NOTES] = (f"Skipped {skip} comment line{'s' if skip > 1 else ''} starting with '#' at the top of {path.name}.",)
-    return frame
-
-
-def _read_csv(path: Path) -> pd.DataFrame:
-    sep = "\t" if path.suffix.lower() == ".tsv" else None
-    try:
-        # utf-8-sig: spreadsheet "CSV UTF-8" exports start with a byte-order mark,
-        # which would otherwise stick to the first column's name
-        return _read_csv_as(path, sep, "utf-8-sig")
-    except UnicodeDecodeError:
-        pass  # not UTF-8: an older spreadsheet export, read as Latin-1 below
-    except InputError:
-        raise
-    except Exception as exc:
-        raise InputError(f"Cannot read {str(path)!r} as CSV ({_plain(exc)}). Check the delimiter and quoting.") from exc
-    try:
-        return _read_csv_as(path, sep, "latin-1")
-    except InputError:
-        raise
-    except Exception as exc:
-        raise InputError(
-            f"Cannot read {str(path)!r} as CSV (not UTF-8, tried Latin-1: {_plain(exc)}). "
-            "Check the delimiter and quoting, or save the file as UTF-8."
-        ) from exc
-
-
-def _find_coordinate_columns(columns, x: str | None, y: str | None, where: str) -> tuple[str, str]:
-    if (x is None) != (y is None):
-        raise InputError("Give both --x and --y (the coordinate columns), or neither to detect them.")
-    if x is not None:
-        missing = [c for c in (x, y) if c not in columns]
-        if missing:
-            raise InputError(f"{where} has no column {missing[0]!r}. Columns present: {', '.join(map(str, columns))}.")
-        return x, y
-    lower = {str(c).lower(): c for c in columns}
-    for cx, cy in _COORDINATE_PAIRS:
-        if cx in lower and cy in lower:
-            return lower[cx], lower[cy]
-    raise InputError(
-        f"{where} has no recognisable coordinate columns (looked for pairs such as x/y, lon/lat, "
-        f"longitude/latitude, easting/northing). Name them with --x COLUMN --y COLUMN. "
-        f"Columns present: {', '.join(map(str, columns))}."
-    )
-
-
-def _coordinate_column(column: pd.Series, thousands: str | None) -> tuple[np.ndarray, np.ndarray]:
-    """Numbers of a coordinate column and, per cell, why it is not one ("" when it is)."""
-    n = len(column)
-    why = np.full(n, "", dtype=object)
-    if pd.api.types.is_numeric_dtype(column.dtype) and not pd.api.types.is_bool_dtype(column.dtype):
-        return column.to_numpy(dtype=float, na_value=np.nan), why
-    text = column.astype("object")
-    # a comma means the same thing in every cell of the column (as for values)
-    numbers = pd.to_numeric(_numbers_from_text(text, comma_convention(text, thousands)), errors="coerce")
-    numbers = numbers.to_numpy(dtype=float, na_value=np.nan)
-    filled = text.map(lambda v: not (v is None or (isinstance(v, float) and np.isnan(v)) or (isinstance(v, str) and not v.strip()))).to_numpy(dtype=bool)
-    for row in np.flatnonzero(np.isnan(numbers) & filled):
-        why[row] = f"coordinate {str(text.iloc[row])[:40]!r} is not a number"
-    return numbers, why
-
-
-def _swapped_names_note(cx, cy) -> str | None:
-    lat_like = {"lat", "latitude", "y", "northing", "north", "y_coord", "ycoord", "coord_y", "point_y"}
-    lon_like = {"lon", "long", "lng", "longitude", "x", "easting", "east", "x_coord", "xcoord", "coord_x", "point_x"}
-    if str(cx).lower() in lat_like and str(cy).lower() in lon_like:
-        return (
-            f"--x names column {str(cx)!r} and --y column {str(cy)!r}: x is the longitude or easting and y the "
-            "latitude or northing, so the columns look swapped. Check --x and --y."
-        )
-    return None
-
-
-def _points_from_columns(frame: pd.DataFrame, x, y, crs, where: str, thousands: str | None = None):
-    cx, cy = _find_coordinate_columns(list(frame.columns), x, y, where)
-    xs, why_x = _coordinate_column(frame[cx], thousands)
-    ys, why_y = _coordinate_column(frame[cy], thousands)
-    import shapely
-
-    ok = np.isfinite(xs) & np.isfinite(ys)
-    geometry = np.full(len(frame), None, dtype=object)
-    geometry[ok] = shapely.points(xs[ok], ys[ok])
-    # a table may already have a "geometry" column (WKT text, say): keep it as it is
-    name = _free_name("geometry", frame.columns)
-    table = pd.DataFrame(frame).copy()
-    table[name] = gpd.GeoSeries(geometry, index=frame.index)
-    gdf = gpd.GeoDataFrame(table, geometry=name, crs=crs)
-    reasons = np.where(why_x != "", why_x, why_y)
-    partial = ~ok & (reasons == "") & (np.isfinite(xs) | np.isfinite(ys))
-    reasons[partial] = "no location (one coordinate is blank)"
-    reasons[~ok & (reasons == "")] = "no location (blank coordinates)"
-    gdf.attrs[LOCATION_REASONS] = pd.Series(reasons, index=frame.index, dtype=object)
-    notes = tuple(frame.attrs.get(READ_NOTES, ()))
-    swapped = _swapped_names_note(cx, cy) if x is not None else None
-    if swapped:
-        log.warning(swapped)
-        notes += (swapped,)
-    if notes:
-        gdf.attrs[READ_NOTES] = notes
-    return gdf, (str(cx), str(cy))
 
 
 def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) -> Path:
@@ -439,17 +271,6 @@ def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) ->
     if not out_path.parent.exists():
         raise OutputError(f"Folder {str(out_path.parent)!r} does not exist. Create it first or choose another --out path.")
     return out_path
-
-
-def _free_name(base: str, columns) -> str:
-    """``base``, or ``base_1``, ``base_2``... : a name no column has (case-insensitively,
-    as SQLite compares names)."""
-    taken = {str(c).lower() for c in columns}
-    name, number = base, 0
-    while name.lower() in taken:
-        number += 1
-        name = f"{base}_{number}"
-    return name
 
 
 #: Suffix of the temporary files written beside an output: no input format has it,
@@ -509,9 +330,9 @@ def _write_problem(out_path: Path, exc: BaseException) -> OutputError | None:
     """The output-problem error for a full disk, an I/O error or a refused write, else None."""
     text = str(exc)
     if isinstance(exc, OSError) and not isinstance(exc, OutputError):
-        why = exc.strerror or _plain(exc)
+        why = exc.strerror or plain_library_text(exc)
     elif any(word in text.lower() for word in _WRITE_PROBLEMS):
-        why = _plain(exc)
+        why = plain_library_text(exc)
     else:
         return None
     return OutputError(
@@ -612,7 +433,7 @@ def _write_layer(pyogrio, temporary: str, name: str, frame: pd.DataFrame, descri
         attributes = [c for c in frame.columns if c != frame.geometry.name]
         # the GeoPackage's own key and geometry columns must not take an input
         # column's name: GDAL would swallow a "FID" column as the feature id
-        options = {"FID": _free_name("fid", attributes), "GEOMETRY_NAME": _free_name("geom", attributes)}
+        options = {"FID": free_name("fid", attributes), "GEOMETRY_NAME": free_name("geom", attributes)}
         if description:
             options["DESCRIPTION"] = description
         if frame.index.name == _FEATURE_ID:
@@ -624,7 +445,7 @@ def _write_layer(pyogrio, temporary: str, name: str, frame: pd.DataFrame, descri
         )
     else:
         table = pd.DataFrame(frame).reset_index(drop=True)
-        options = {"FID": _free_name("fid", table.columns)}
+        options = {"FID": free_name("fid", table.columns)}
         if description:
             options["DESCRIPTION"] = description
         pyogrio.write_dataframe(table, temporary, layer=name, driver="GPKG", append=append, layer_options=options)
