@@ -335,7 +335,7 @@ def test_existing_output_without_overwrite_is_left_untouched(tmp_path, capfd, we
 def test_output_path_equal_to_input_is_refused(capfd, wells_gpkg):
     before = fingerprint(wells_gpkg)
     code, text = run(["screen", wells_gpkg, "--value", "level_m", "--out", wells_gpkg, "--overwrite", *FAST], capfd)
-    assert code == 1 and "is the input file; pointsift never writes to its input" in text
+    assert code == 1 and "is the input; pointsift never writes over its input" in text
     assert fingerprint(wells_gpkg) == before
 
 

@@ -201,7 +201,7 @@ def test_output_equal_to_input_is_refused(tmp_path, wells_gpkg):
     # also through another spelling of the same path
     other_spelling = tmp_path / "." / wells_gpkg.name
     for target in (wells_gpkg, other_spelling):
-        with pytest.raises(OutputError, match=r"is the input file; pointsift never writes to its input"):
+        with pytest.raises(OutputError, match=r"is the input; pointsift never writes over its input"):
             psio.write_geopackage(target, _layers(), overwrite=True, protect=(str(wells_gpkg),))
     assert fingerprint(wells_gpkg) == before
 
@@ -392,3 +392,23 @@ def test_measured_points_keep_their_m_values(tmp_path):
     back = pyogrio.read_dataframe(out, layer="screened", use_arrow=True)  # Reference: pyogrio through Arrow keeps M
     assert shapely.has_m(back.geometry.array).all()
     assert shapely.get_m(back.geometry.array).tolist() == list(range(20))
+
+
+@pytest.mark.parametrize("side", [".dbf", ".prj", ".shx", ".cpg", ".DBF"])
+def test_every_file_of_a_shapefile_input_is_refused_as_an_output(tmp_path, side):
+    # Issue 10, item 1: --report or --summary-json on a shapefile's side file replaced it.
+    source = write_points(build_wells(20, seed=2), tmp_path / "wells.shp")
+    (tmp_path / "wells.cpg").write_text("UTF-8")
+    before = fingerprint(source)
+    with pytest.raises(OutputError, match=r"--report '.*wells\.(dbf|prj|shx|cpg|DBF)' is a file of the input '.*wells\.shp'; pointsift never writes over its input"):
+        psio.check_output_paths([("--out", tmp_path / "out.gpkg"), ("--report", tmp_path / f"wells{side}")], [source])
+    assert fingerprint(source) == before
+
+
+def test_two_outputs_of_one_run_may_not_share_a_file(tmp_path, wells_gpkg):
+    # Issue 10, item 1: --report equal to --out was refused only after the GeoPackage was written.
+    out = tmp_path / "out.gpkg"
+    with pytest.raises(OutputError, match=r"--report and --out name the same file"):
+        psio.check_output_paths([("--out", out), ("--report", tmp_path / "." / "out.gpkg")], [wells_gpkg])
+    assert not out.exists()
+    psio.check_output_paths([("--out", out), ("--report", tmp_path / "out.html")], [wells_gpkg])  # distinct: fine

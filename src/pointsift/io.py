@@ -27,6 +27,8 @@ __all__ = [
     "read_points",
     "list_layers",
     "file_sha256",
+    "input_files",
+    "check_output_paths",
     "write_geopackage",
     "remove_stale_partials",
     "SCREENED_LAYER",
@@ -73,6 +75,91 @@ class SourceInfo:
     notes: tuple[str, ...] = field(default_factory=tuple)
 
 
+_SHAPEFILE_PARTS = {".shp", ".shx", ".dbf", ".prj", ".cpg"}
+
+
+def input_files(path: str | os.PathLike, *, hashed_only: bool = False) -> list[Path]:
+    """Every file that belongs to an input: a shapefile's side files, a
+    GeoPackage's journal files; these are never written.
+
+    Parameters
+    ----------
+    path : path-like
+        The input as named.
+    hashed_only : bool
+        Only the files :func:`file_sha256` hashes (those that exist).
+
+    Returns
+    -------
+    list of pathlib.Path
+    """
+    path = Path(path)
+    if path.suffix.lower() == ".shp":
+        files = sorted(p for p in path.parent.glob(glob_escape(path.stem) + ".*") if p.suffix.lower() in _SHAPEFILE_PARTS)
+        if hashed_only:
+            return files
+        # also the side files a shapefile may have but does not now (a new .prj would change the layer)
+        wanted = {str(p) for p in files} | {str(path.with_suffix(s)) for s in _SHAPEFILE_PARTS | {s.upper() for s in _SHAPEFILE_PARTS}}
+        return sorted(Path(p) for p in wanted)
+    if hashed_only:
+        return [path]
+    return [path] + [Path(f"{path}{tail}") for tail in ("-journal", "-wal", "-shm")]
+
+
+def glob_escape(text: str) -> str:
+    """``text`` with glob's special characters escaped."""
+    import glob
+
+    return glob.escape(text)
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    if os.path.abspath(a) == os.path.abspath(b) or a.resolve() == b.resolve():
+        return True
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)  # hard links
+    except OSError:
+        return False
+
+
+def check_output_paths(outputs, inputs) -> None:
+    """Refuse, before any work, an output that is a file of an input or another output.
+
+    Parameters
+    ----------
+    outputs : iterable of (str, path-like)
+        ``(option, path)`` of every file the run will write, e.g.
+        ``("--out", "a.gpkg")``, ``("--report", "a.html")``.
+    inputs : iterable of path-like
+        The inputs read (each with its side files, :func:`input_files`).
+
+    Raises
+    ------
+    OutputError
+        An output is an input's file, or two outputs name the same file.
+    """
+    protected = [(Path(i), f) for i in inputs if i for f in input_files(i)]
+    seen: list[tuple[str, Path]] = []
+    for option, path in outputs:
+        if path is None:
+            continue
+        target = Path(path)
+        for source, part in protected:
+            if _same_file(target, part):
+                what = "the input" if part == source else f"a file of the input {str(source)!r}"
+                raise OutputError(
+                    f"{option} {str(target)!r} is {what}; pointsift never writes over its input. "
+                    f"Choose another {option} path."
+                )
+        for other_option, other in seen:
+            if _same_file(target, other):
+                raise OutputError(
+                    f"{option} and {other_option} name the same file {str(target)!r}; each output needs its own path. "
+                    f"Choose another {option} path."
+                )
+        seen.append((option, target))
+
+
 def file_sha256(path: str | os.PathLike) -> str:
     """SHA-256 of a file, or of a shapefile and its side files together.
 
@@ -86,12 +173,8 @@ def file_sha256(path: str | os.PathLike) -> str:
     str
         Hexadecimal digest.
     """
-    path = Path(path)
     digest = hashlib.sha256()
-    files = [path]
-    if path.suffix.lower() == ".shp":
-        files = sorted(p for p in path.parent.glob(path.stem + ".*") if p.suffix.lower() in {".shp", ".shx", ".dbf", ".prj", ".cpg"})
-    for item in files:
+    for item in input_files(path, hashed_only=True):
         with open(item, "rb") as handle:
             for block in iter(lambda: handle.read(1 << 20), b""):
                 digest.update(block)
@@ -262,10 +345,7 @@ def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) ->
     out_path = Path(out_path)
     if out_path.suffix.lower() != ".gpkg":
         raise OutputError(f"Output {str(out_path)!r} must be a GeoPackage file ending in .gpkg.")
-    resolved = out_path.resolve()
-    for item in protect:
-        if item and Path(item).resolve() == resolved:
-            raise OutputError(f"Output {str(out_path)!r} is the input file; pointsift never writes to its input. Choose another --out path.")
+    check_output_paths([("Output", out_path)], protect)
     if out_path.exists() and not overwrite:
         raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.")
     if not out_path.parent.exists():

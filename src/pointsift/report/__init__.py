@@ -94,14 +94,17 @@ class Report:
 
 
 def _write_text(path, text: str, protect: tuple) -> Path:
+    from ..io import PARTIAL_SUFFIX, check_output_paths, remove_stale_partials
+
     target = Path(path)
-    for other in protect:
-        if other and os.path.abspath(os.fspath(other)) == os.path.abspath(target):
-            raise OutputError(f"Refusing to write the report over the input {os.fspath(other)!r}. Choose another file name.")
+    # the input with its side files (a shapefile's .dbf, .prj...), and the run's other outputs
+    check_output_paths([("The report", target)], [p for p in protect if p])
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
         raise OutputError(f"Folder {str(folder)!r} for {str(target)!r} does not exist. Create it first or choose another path.")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
+    remove_stale_partials(folder)
+    # named like the GeoPackage's temporary files: no input suffix, removed by the next run when left
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=PARTIAL_SUFFIX, dir=folder)
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
             handle.write(text)
