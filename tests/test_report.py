@@ -510,7 +510,7 @@ def test_cli_refuses_to_replace_a_report_without_overwrite(tmp_path):
 
 def test_report_write_refuses_the_input_and_missing_folders(screened, tmp_path):
     report = build_report(screened["run"].result)
-    with pytest.raises(OutputError, match="over the input"):
+    with pytest.raises(OutputError, match="is the input; pointsift never writes over its input"):
         report.write(tmp_path / "in.gpkg", protect=(str(tmp_path / "in.gpkg"),))
     with pytest.raises(OutputError, match="does not exist"):
         report.write(None, tmp_path / "nowhere" / "s.json")
