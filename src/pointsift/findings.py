@@ -165,7 +165,8 @@ def distribution_findings(values, usable, *, suspect=None, unscreened_reason=Non
     at = next((i for i, ln in enumerate(lines) if ln.rstrip().endswith("| leaves")), len(lines) - 1) + 1
 
     def listing(kind, v):
-        shown = ", ".join(f"{t:.{decimals}f}" for t in v[:MAX_LISTED])
+        # the values as recorded (not rounded to the leaf unit), as Tukey lists them
+        shown = ", ".join(np.format_float_positional(t, precision=max(decimals, 6), trim="-") for t in v[:MAX_LISTED])
         more = f" (+{v.size - MAX_LISTED} more)" if v.size > MAX_LISTED else ""
         return f"{kind}: {shown}{more}"
 

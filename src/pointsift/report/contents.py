@@ -26,6 +26,9 @@ SUMMARY_FORMAT = "pointsift-summary"
 #: ``format_version`` of the summary JSON document (bumped when a field changes meaning).
 SUMMARY_VERSION = 2
 
+#: Out-of-line lag pairs listed in the page and the JSON, farthest out first (all are in the GeoPackage).
+PAIRS_LISTED = 100
+
 #: Flagged points shown with a neighbourhood view at the top of the page (the table lists all).
 NEIGHBOURHOOD_VIEWS = 60
 
@@ -165,7 +168,11 @@ def _lag_pairs_part(findings, summary: dict) -> dict:
         summary["lag_pairs"] = {"available": False}
         _section(summary, "lag_pairs", "Lag pairs", False, "Not available: no lag-pair screen was made.")
         return {}
-    summary["lag_pairs"] = lp
+    # the page and the JSON list the farthest-out pairs; every one is in the GeoPackage's lag_pairs layer
+    pairs = lp["flagged_pairs"]
+    listed = sorted(range(len(pairs)), key=lambda i: (-abs(pairs[i]["pair_z"] or 0.0), i))[:PAIRS_LISTED]
+    summary["lag_pairs"] = {**lp, "flagged_pairs": [pairs[i] for i in sorted(listed)],
+                            "flagged_pairs_listed": len(listed)}
     _section(summary, "lag_pairs", "Lag pairs", True)
     out = {}
     for panel in findings.drawing.get("lag_panels", []):

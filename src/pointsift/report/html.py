@@ -60,9 +60,8 @@ def _nav(summary: dict) -> str:
 
 def _counts_section(summary: dict) -> str:
     counts = summary.get("counts")
-    if counts is None:
-        return ('<section id="counts"><p class="unavailable">This layer was described, not screened: no statuses. '
-                "Run 'pointsift screen' (or 'describe --with-screen') for suspects and review points.</p></section>")
+    if counts is None:  # the points-to-check section says why there are none
+        return '<section id="counts"></section>'
     total = sum(counts.values())
     cards = []
     for word in STATUS_WORDS:
@@ -171,7 +170,8 @@ def _map_section(summary: dict, figures: dict) -> str:
         parts.append(f"{count:,} {word} points are shown as density (hexagons, darker = more points) because there are "
                      f"more than {m.get('max_points', 0):,}.")
     if m.get("unlocated"):
-        parts.append(f"{plural(m['unlocated'], 'row')} without a usable location are not on the map.")
+        parts.append(f"{plural(m['unlocated'], 'row')} without a usable value or location "
+                     f"{'is' if m['unlocated'] == 1 else 'are'} not on the map.")
     parts.append(f"Coordinates in {escape(str(summary['crs']['work_name']))}; no background map (this file works offline).")
     return '<section id="map"><h2>Map</h2>' + figure_html(figures, "status_map", " ".join(parts)) + "</section>"
 

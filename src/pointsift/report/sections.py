@@ -18,8 +18,6 @@ __all__ = ["distribution_section", "local_section", "variogram_section", "strips
 
 _NUM = ' class="num"'
 _FLAG_ROW = ' class="flag-row"'
-#: Out-of-line pairs listed on the page, farthest out first (all are in the JSON and the GeoPackage).
-PAIRS_SHOWN = 100
 
 
 def _sort_key(value) -> str:
@@ -256,12 +254,13 @@ def lag_pairs_section(summary: dict, figures: dict) -> str:
                 ("head_value", "number", "Head value"), ("difference", "number", "Difference"),
                 ("separation", "number", "Separation (m)"), ("direction", "text", "Direction (\u00b0)"),
                 ("lag", "number", "Lag"), ("pair_z", "number", "How far out"), ("culprit_id", "text", "Likely culprit")]
-        shown = sorted(pairs, key=lambda p: -abs(p["pair_z"] or 0.0))[:PAIRS_SHOWN]
+        shown = sorted(pairs, key=lambda p: -abs(p["pair_z"] or 0.0))
+        total = int(lp.get("pairs_flagged") or len(pairs))
         body = "".join("<tr>" + "".join(num_cell(p[k], 5) if t == "number" else f"<td>{text(p[k])}</td>"
                                         for k, t, _ in cols) + "</tr>" for p in shown)
-        title = (f"Out-of-line pairs ({len(pairs):,})" if len(shown) == len(pairs) else
-                 f"The {len(shown):,} farthest out of {len(pairs):,} out-of-line pairs (all of them are in the "
-                 "GeoPackage's lag_pairs layer and the JSON summary)")
+        title = (f"Out-of-line pairs ({total:,})" if len(shown) == total else
+                 f"The {len(shown):,} farthest out of {total:,} out-of-line pairs (all of them are in the "
+                 "GeoPackage's lag_pairs layer)")
         table = f"<h3>{title}</h3>" + _sortable("pairs-table", cols, body)
     return (f'<section id="lag_pairs"><details class="method"><summary>Lag pairs: '
             f"{plural(int(lp.get('pairs_flagged') or 0), 'pair')} out of line, {plural(len(culprits), 'likely culprit')}"
