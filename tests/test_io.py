@@ -412,3 +412,30 @@ def test_two_outputs_of_one_run_may_not_share_a_file(tmp_path, wells_gpkg):
         psio.check_output_paths([("--out", out), ("--report", tmp_path / "." / "out.gpkg")], [wells_gpkg])
     assert not out.exists()
     psio.check_output_paths([("--out", out), ("--report", tmp_path / "out.html")], [wells_gpkg])  # distinct: fine
+def test_atomic_write_replaces_only_when_the_block_succeeds(tmp_path):
+    target = tmp_path / "out.txt"
+    target.write_text("old")
+    with pytest.raises(RuntimeError):
+        with psio.atomic_write(target) as part:
+            part.write_text("half")
+            (tmp_path / (part.name + "-journal")).write_text("side file")  # as SQLite leaves beside a database
+            raise RuntimeError("stopped midway")
+    assert target.read_text() == "old"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out.txt"]
+    with psio.atomic_write(target) as part:
+        assert not part.exists() and part.parent == tmp_path
+        part.write_text("new")
+    assert target.read_text() == "new"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out.txt"]
+    with pytest.raises(OutputError, match="exists"):
+        with psio.atomic_write(target, overwrite=False) as part:
+            part.write_text("newer")
+    assert target.read_text() == "new" and sorted(p.name for p in tmp_path.iterdir()) == ["out.txt"]
+
+
+def test_write_text_gives_usual_permissions_and_unix_line_ends(tmp_path):
+    umask = os.umask(0)
+    os.umask(umask)
+    path = psio.write_text(tmp_path / "a.txt", "one\ntwo\n")
+    assert path.read_bytes() == b"one\ntwo\n"
+    assert (path.stat().st_mode & 0o777) == (0o666 & ~umask)  # as open() creates files (common practice)

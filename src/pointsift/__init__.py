@@ -12,7 +12,7 @@ The public API is small:
 
 import logging
 
-__version__ = "0.1.0"
+from ._version import __version__
 
 logging.getLogger(__name__).addHandler(logging.NullHandler())
 

@@ -34,8 +34,9 @@ from .io import SourceInfo
 from .methods.change import change_screen
 from .methods.history import history_screen, theil_sen
 from .methods.local import _masked_median
-from .pipeline import CAUTION, _library_versions, automatic_max_distance, screen_frame
+from .pipeline import automatic_max_distance, screen_frame
 from .prepare import prepare
+from .record import CAUTION, library_versions
 from .verdict import STATUSES
 
 __all__ = ["CampaignConfig", "CampaignResult", "screen_campaigns", "campaigns"]
@@ -592,7 +593,7 @@ def screen_campaigns(
         "counts": counts,
         "notes": list(prepared.notes),
         "timings_s": {k: round(v, 4) for k, v in timings.items()},
-        "versions": _library_versions(),
+        "versions": library_versions(),
         "caution": CAUTION,
     }
     series = {"matrix": matrix, "neighbour_level": neighbour_level, "values": values}

@@ -24,11 +24,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .vocabulary import FLAGGED, STATUSES
+
 __all__ = ["Findings", "MapData", "FLAGGED", "FAR_FENCE", "plain", "flagged_rows", "far_fences",
            "screen_findings", "describe_findings", "distribution_findings"]
 
 #: Statuses listed as points to check, strongest first.
-FLAGGED = ("suspect", "review")
 #: Interquartile ranges beyond the quartiles where a value is "far out" (Tukey 1977).
 FAR_FENCE = 3.0
 #: Far values listed by value on a LO or HI line (the rest are counted).
@@ -367,7 +368,7 @@ def describe_findings(description, structure, *, bin_width=None, stem_unit=None,
     else:
         if {"screen_status", "screen_score"} <= set(frame.columns):  # a pointsift output described again
             status = frame["screen_status"].astype(object).to_numpy()
-            counts = {s: int((status == s).sum()) for s in ("suspect", "review", "ok", "unscreened")}
+            counts = {s: int((status == s).sum()) for s in STATUSES}
             flagged = _flagged(frame, prepared, description.value_label)
         map_data = MapData(xy=prepared.xy, values=prepared.values, ids=ids, status=status,
                            score=frame["screen_score"].to_numpy(dtype=float) if status is not None else None,

@@ -13,6 +13,8 @@ import json
 import logging
 import os
 import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -31,6 +33,9 @@ __all__ = [
     "check_output_paths",
     "write_geopackage",
     "remove_stale_partials",
+    "atomic_write",
+    "write_text",
+    "run_info_table",
     "SCREENED_LAYER",
     "PARTIAL_SUFFIX",
     "LOCATION_REASONS",
@@ -356,6 +361,8 @@ def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) ->
 #: Suffix of the temporary files written beside an output: no input format has it,
 #: so no folder scan or glob of inputs ever takes one.
 PARTIAL_SUFFIX = ".pointsift-partial"
+#: Files SQLite (GeoPackage) may leave beside a database being written.
+_SIDE_FILES = ("-journal", "-wal", "-shm")
 
 _WRITE_PROBLEMS = ("disk", "full", "i/o", "no space", "read-only", "readonly", "permission", "unable to open",
                    "too large", "quota", "cannot open", "failed to create", "write error")
@@ -443,6 +450,67 @@ def _move_into_place(temporary: str, out_path: Path, overwrite: bool) -> None:
     os.unlink(temporary)
 
 
+@contextmanager
+def atomic_write(path: str | os.PathLike, *, overwrite: bool = True) -> Iterator[Path]:
+    """Write a file all at once: yield a temporary path beside ``path``, then move it into place.
+
+    Every file pointsift writes goes through here. The temporary file
+    (``.<name>.<pid>.<random>.pointsift-partial``) does not exist yet when the
+    block starts (writers such as GDAL create it); partial files that killed
+    runs left in the folder are removed first. When the block finishes, the
+    file is moved into place (:func:`os.replace`; without ``overwrite`` the
+    move is exclusive, so of two runs creating the same new file the second
+    fails). When the block raises (also on Ctrl-C), the temporary file and any
+    SQLite side files are removed and ``path`` is left as it was; a full disk
+    or a refused write becomes an :class:`~pointsift.errors.OutputError`.
+
+    Parameters
+    ----------
+    path : path-like
+        The file to write. Its folder must exist.
+    overwrite : bool
+        Replace an existing ``path``.
+
+    Yields
+    ------
+    pathlib.Path
+        The temporary file to write.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> target = pathlib.Path(tempfile.mkdtemp()) / "note.txt"
+    >>> with atomic_write(target) as part:
+    ...     _ = part.write_text("whole or absent")
+    >>> target.read_text()
+    'whole or absent'
+    """
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    remove_stale_partials(folder)
+    temporary = _temporary_beside(target)
+    try:
+        yield Path(temporary)
+        _move_into_place(temporary, target, overwrite)
+    except BaseException as exc:
+        for leftover in (temporary, *(temporary + side for side in _SIDE_FILES)):
+            if os.path.exists(leftover):
+                os.unlink(leftover)
+        problem = _write_problem(target, exc) if isinstance(exc, Exception) else None
+        if problem is not None:
+            raise problem from exc
+        raise
+
+
+def write_text(path: str | os.PathLike, text: str, *, overwrite: bool = True) -> Path:
+    """Write text (UTF-8, ``\\n`` line ends) to ``path`` atomically (:func:`atomic_write`); return the path."""
+    target = Path(path)
+    with atomic_write(target, overwrite=overwrite) as part:
+        with open(part, "w", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+    return target
+
+
 def write_geopackage(
     out_path: str | os.PathLike,
     layers: dict[str, pd.DataFrame],
@@ -484,26 +552,15 @@ def write_geopackage(
     import pyogrio
 
     out_path = _atomic_target(Path(out_path), overwrite, protect)
-    remove_stale_partials(out_path.parent)
-    temporary = _temporary_beside(out_path)
     descriptions = descriptions or {}
-    try:
+    with atomic_write(out_path, overwrite=overwrite) as temporary:
         with warnings.catch_warnings():
             # the temporary file's suffix is not .gpkg on purpose (see PARTIAL_SUFFIX)
             warnings.filterwarnings("ignore", message=".*(extension should be|non conformant file extension).*", category=RuntimeWarning)
             # measured points: GDAL records the M hint itself (the M values are written)
             warnings.filterwarnings("ignore", message=".*does contain geometries with M.*", category=RuntimeWarning)
             for name, frame in layers.items():
-                _write_layer(pyogrio, temporary, name, frame, descriptions.get(name))
-        _move_into_place(temporary, out_path, overwrite)
-    except BaseException as exc:
-        for leftover in (temporary, temporary + "-journal", temporary + "-wal", temporary + "-shm"):
-            if os.path.exists(leftover):
-                os.unlink(leftover)
-        problem = _write_problem(out_path, exc) if isinstance(exc, Exception) else None
-        if problem is not None:
-            raise problem from exc
-        raise
+                _write_layer(pyogrio, str(temporary), name, frame, descriptions.get(name))
     return out_path
 
 

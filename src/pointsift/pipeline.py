@@ -6,34 +6,35 @@ the batch runner and the Python API all call :func:`screen_frame`.
 
 from __future__ import annotations
 
-import functools
 import logging
-import platform
 import time
 from dataclasses import dataclass, field
 from functools import cached_property
-from datetime import datetime, timezone
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from . import __version__
 from .config import ScreenConfig
 from .errors import InputError
 from .graph import NeighbourGraph, build_graph
 from .io import SourceInfo
-from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation, local_autocorrelation
+from .methods.autocorr import LocalAutocorrelation, local_autocorrelation
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
 from .methods.repairs import likely_slips
 from .methods.lagpairs import lag_pair_reasons
 from .methods.strips import flagged_strip_evidence, strip_summary
 from .prepare import Prepared, prepare
-from .verdict import STATUSES, decide, format_length
+from .record import CAUTION, library_versions, run_record
+from .verdict import decide, format_length
+from .vocabulary import QUADRANT_WORDS, STATUSES, UNSCREENED
 
 __all__ = ["ScreenResult", "SpatialStructure", "screen_frame", "screen", "spatial_structure", "ADDED_COLUMNS",
            "automatic_max_distance", "library_versions", "CAUTION"]
+
+#: Kept importable from here for older callers; the run record lives in pointsift.record.
+_library_versions = library_versions
 
 log = logging.getLogger(__name__)
 
@@ -124,31 +125,6 @@ def automatic_max_distance(xy: np.ndarray) -> float:
     logs = np.log(d[:, 1][d[:, 1] > 0])
     q1, q3 = np.percentile(logs, [25, 75])
     return float(np.exp(q3 + 3.0 * max(q3 - q1, np.log(2.0))))
-
-
-def library_versions() -> dict:
-    """Versions of pointsift, Python, the libraries and GDAL (read once per process, without importing the slow ones)."""
-    return dict(_installed_versions())
-
-
-_library_versions = library_versions
-
-
-@functools.lru_cache(maxsize=1)
-def _installed_versions() -> dict:
-    # read installed versions without importing esda/libpysal (slow imports)
-    from importlib.metadata import PackageNotFoundError, version
-
-    import pyogrio
-
-    versions = {"pointsift": __version__, "python": platform.python_version()}
-    for name in ("numpy", "scipy", "pandas", "geopandas", "shapely", "pyproj", "pyogrio", "libpysal", "esda"):
-        try:
-            versions[name] = version(name)
-        except PackageNotFoundError:
-            versions[name] = "not installed"
-    versions["gdal"] = pyogrio.__gdal_version_string__
-    return versions
 
 
 _TREND_SAMPLE = 20_000
@@ -373,7 +349,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     )
     timings["verdict_s"] = time.perf_counter() - t
 
-    screened = verdict["screen_status"].to_numpy() != "unscreened"
+    screened = verdict["screen_status"].to_numpy() != UNSCREENED
     out = frame.copy()
     if out.crs is None:
         # the CRS the run used (--crs), so the output is not written without one
@@ -403,19 +379,12 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
 
     counts = {status: int((added["screen_status"] == status).sum()) for status in STATUSES}
     timings["total_s"] = time.perf_counter() - started
-    run_info = {
-        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "input_path": source.path if source else None,
-        "input_layer": source.layer if source else None,
-        "input_format": source.driver if source else None,
-        "input_sha256": source.sha256 if source else None,
-        "rows": int(prepared.n),
-        "value_column": config.value,
-        "id_column": config.id,
-        "input_crs": prepared.input_crs.to_string(),
-        "work_crs": prepared.work_crs.to_string(),
-        "work_crs_name": prepared.work_crs.name,
-        "graph": {
+    run_info = run_record(
+        "screen",
+        config=config,
+        prepared=prepared,
+        source=source,
+        graph={
             "kind": config.graph,
             "k": config.k if config.graph == "knn" else None,
             "within_m": config.within,
@@ -423,19 +392,19 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "max_distance_automatic": config.max_distance is None,
             "min_neighbours": config.min_neighbours,
         },
-        "distance_scale": {
+        distance_scale={
             name: {
                 "distance_m": [round(float(np.exp(k)), 3) for k in knots],
                 "robust_sd": [round(float(s), 6) for s in knot_scale],
             }
             for name, (knots, knot_scale) in local.distance_model.items()
         },
-        "predictor": {
+        predictor={
             "local_plane": int((screened & ~local.quadratic_used).sum()),
             "local_quadratic": int((screened & local.quadratic_used).sum()),
         },
-        "trend": trend_info,
-        "local_autocorrelation": {
+        trend=trend_info,
+        local_autocorrelation={
             "kernel": autocorr.kernel,
             "permutations": config.permutations,
             "points_with_more_permutations": int((autocorr.permutations > config.permutations).sum()),
@@ -443,13 +412,9 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "fdr": config.fdr,
         },
         **spatial_info,
-        "parameters": config.as_record(),
-        "counts": counts,
-        "notes": list(prepared.notes),
-        "timings_s": {k: round(v, 4) for k, v in timings.items()},
-        "versions": _library_versions(),
-        "caution": CAUTION,
-    }
+        counts=counts,
+        timings_s={k: round(v, 4) for k, v in timings.items()},
+    )
     return ScreenResult(
         frame=out,
         counts=counts,
@@ -469,14 +434,6 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "strips": strips,
         },
     )
-
-
-#: The caution carried by every output.
-CAUTION = (
-    "Screening flags are aids for checking data, not determinations that a value is wrong or right. "
-    "Check field records and the well's history before correcting or discarding anything, and follow "
-    "local regulations and licensed professional practice for decisions about water supply."
-)
 
 
 def screen(gdf: gpd.GeoDataFrame, value: str, id: str | None = None, **options) -> gpd.GeoDataFrame:

@@ -35,12 +35,21 @@ import numpy as np
 import pandas as pd
 
 from .config import ScreenConfig
-from .methods.autocorr import QUADRANT_WORDS, LocalAutocorrelation
+from .methods.autocorr import LocalAutocorrelation
 from .methods.local import LocalResult
+from .vocabulary import (
+    FLAGGED,
+    OK,
+    QUADRANT_WORDS,
+    REVIEW,
+    ROLE_AGREES,
+    ROLE_CONTRADICTED,
+    STATUSES,
+    SUSPECT,
+    UNSCREENED,
+)
 
 __all__ = ["decide", "format_length", "STATUSES"]
-
-STATUSES = ("suspect", "review", "ok", "unscreened")
 
 
 def format_length(metres: float) -> str:
@@ -119,13 +128,13 @@ def decide(
     score = np.where(echoed, 0.5 * absz, absz)
 
     role = coincident["role"].to_numpy()
-    contradicted = role == "contradicted"
+    contradicted = role == ROLE_CONTRADICTED
     undecided = role == "undecided"
 
     slip_fits = slips[0] if slips is not None else np.zeros(n, dtype=bool)
     suspect = ~unscreened & ((((absz >= config.suspect_z) | (slip_fits & (absz >= config.review_z))) & ~echoed) | contradicted)
     review = ~unscreened & ~suspect & ((absz >= config.review_z) | undecided)
-    status = np.where(unscreened, "unscreened", np.where(suspect, "suspect", np.where(review, "review", "ok")))
+    status = np.where(unscreened, UNSCREENED, np.where(suspect, SUSPECT, np.where(review, REVIEW, OK)))
     score = np.where(contradicted | (suspect & slip_fits), np.maximum(score, config.suspect_z), score)
     score = np.where(unscreened, np.nan, np.round(score, 3))
 
@@ -173,7 +182,7 @@ def decide(
         main[i] = text
     parts = [np.array(main, dtype=object)]
 
-    flagged = np.isin(status, ("suspect", "review"))
+    flagged = np.isin(status, FLAGGED)
     if autocorr is not None:
         # supporting evidence: stated for flagged points (a smooth field puts
         # half of all points in significant clusters; saying so on every ok
@@ -195,9 +204,9 @@ def decide(
     partner = coincident["partner"].to_numpy()
     for i in np.flatnonzero(role != ""):
         other = ids[partner[i]] if partner[i] >= 0 else "another record"
-        if role[i] == "agrees":
+        if role[i] == ROLE_AGREES:
             text[i] = f"a coincident record ({other}) agrees"
-        elif role[i] == "contradicted":
+        elif role[i] == ROLE_CONTRADICTED:
             text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with {other}"
         elif role[i] == "supported":
             text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with this record, not {other}"

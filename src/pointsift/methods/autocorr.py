@@ -43,6 +43,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..graph import NeighbourGraph
+from ..vocabulary import QUADRANT_WORDS
 
 __all__ = [
     "LocalAutocorrelation",
@@ -51,12 +52,6 @@ __all__ = [
     "QUADRANT_WORDS",
 ]
 
-QUADRANT_WORDS = {
-    1: "high among high",
-    2: "low among high",
-    3: "low among low",
-    4: "high among low",
-}
 
 
 @dataclass(frozen=True)

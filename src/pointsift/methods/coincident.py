@@ -14,6 +14,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from ..vocabulary import ROLE_AGREES, ROLE_ALONE, ROLE_CONTRADICTED, ROLE_SUPPORTED, ROLE_UNDECIDED
+
 __all__ = ["coincident_conflicts"]
 
 
@@ -92,7 +94,8 @@ def coincident_conflicts(
     supported = disagree & ~contradicted & group_has_contradicted
     undecided = disagree & ~contradicted & ~supported
     local_role = np.where(
-        contradicted, "contradicted", np.where(supported, "supported", np.where(undecided, "undecided", np.where(single, "", "agrees")))
+        contradicted, ROLE_CONTRADICTED,
+        np.where(supported, ROLE_SUPPORTED, np.where(undecided, ROLE_UNDECIDED, np.where(single, ROLE_ALONE, ROLE_AGREES))),
     )
     role[rows] = local_role
     difference[rows] = np.where(single, np.nan, diff)

@@ -42,6 +42,7 @@ import pandas as pd
 from scipy.spatial import cKDTree
 
 from ..errors import ConfigError, InputError
+from .robust import NORMAL_Q75 as _NORMAL_Q75  # MAD / this and IQR / (2 * this) estimate a normal sd
 
 __all__ = [
     "DEFAULT_DIRECTIONS",
@@ -81,9 +82,6 @@ _SPACING_SAMPLE = 200_000
 _ESTIMATE_POINTS = 10_000
 # Ordered pairs enumerated per chunk of tail points (bounds memory).
 _CHUNK_PAIRS = 4_000_000
-# Upper quartile of the standard normal: MAD / this (about 1.4826 MAD) and
-# IQR / (2 * this) estimate the standard deviation of normal differences.
-_NORMAL_Q75 = 0.6744897501960817
 # Relative slack on the tree's search radius; the exact test is redone on
 # our own distances so points on the radius are judged by one formula.
 _RADIUS_SLACK = 1e-9

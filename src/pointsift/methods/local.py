@@ -39,10 +39,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..graph import NeighbourGraph
+from .robust import MAD_TO_SD as _MAD_TO_SD
 
 __all__ = ["LocalResult", "local_residuals", "robust_plane_predict", "distance_scale", "neighbour_echo"]
 
-_MAD_TO_SD = 1.482602218505602  # 1 / Phi^-1(3/4), common practice
 _BISQUARE_C = 4.685  # 95 % efficiency at the normal, Beaton and Tukey 1974
 
 

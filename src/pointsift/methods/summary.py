@@ -39,6 +39,7 @@ from dataclasses import asdict, dataclass, fields
 import numpy as np
 
 from ..errors import InputError
+from .robust import SIGMA_FROM_IQR, SIGMA_FROM_MAD
 
 __all__ = [
     "Summary",
@@ -52,10 +53,6 @@ __all__ = [
     "SIGMA_FROM_MAD",
 ]
 
-#: IQR of the standard normal distribution (2 x 0.6745, rounded as usually quoted).
-SIGMA_FROM_IQR = 1.349
-#: 1 / 0.6745, the factor turning a MAD into a Gaussian-consistent sd.
-SIGMA_FROM_MAD = 1.4826
 
 
 @dataclass(frozen=True)

@@ -46,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import ConfigError, InputError
+from .robust import NORMAL_Q75 as _MAD_TO_SIGMA
 
 __all__ = [
     "MedianPolish",
@@ -61,7 +62,6 @@ __all__ = [
 
 #: Robust weight functions and their default tuning constants (95 % Gaussian efficiency).
 WEIGHT_FUNCTIONS = {"huber": 1.345, "bisquare": 4.685}
-_MAD_TO_SIGMA = 0.6744897501960817  # scipy.stats.norm.ppf(0.75)
 _NICE = np.array([1.0, 2.0, 2.5, 5.0, 10.0])
 
 

@@ -18,13 +18,12 @@ Examples
 from __future__ import annotations
 
 import json
-import os
-import tempfile
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 
 from ..errors import OutputError
+from ..io import write_text
 from .contents import SUMMARY_FORMAT, SUMMARY_VERSION, collect, flagged_rows
 from .html import render
 
@@ -94,7 +93,7 @@ class Report:
 
 
 def _write_text(path, text: str, protect: tuple) -> Path:
-    from ..io import PARTIAL_SUFFIX, check_output_paths, remove_stale_partials
+    from ..io import check_output_paths
 
     target = Path(path)
     # the input with its side files (a shapefile's .dbf, .prj...), and the run's other outputs
@@ -102,22 +101,7 @@ def _write_text(path, text: str, protect: tuple) -> Path:
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
         raise OutputError(f"Folder {str(folder)!r} for {str(target)!r} does not exist. Create it first or choose another path.")
-    remove_stale_partials(folder)
-    # named like the GeoPackage's temporary files: no input suffix, removed by the next run when left
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=PARTIAL_SUFFIX, dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
-        # mkstemp makes the file private (0600); give it the usual permissions
-        # so a report on a shared drive can be opened by colleagues
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    write_text(target, text)
     return target
 
 
@@ -167,7 +151,7 @@ def build_report(
         When neither a result nor a description is given.
     """
     from ..errors import ConfigError
-    from ..pipeline import CAUTION, library_versions
+    from ..record import CAUTION, library_versions
 
     if result is None and description is None:
         raise ConfigError("build_report needs a screen result or a description; pass result= or description=.")

@@ -58,7 +58,7 @@ def _figure(fig, alt: str) -> dict:
 
 
 def _head(findings, run_info: dict, title: str | None, versions: dict, caution: str) -> dict:
-    from .. import __version__
+    from .._version import __version__
 
     where = os.path.basename(run_info.get("input_path") or "") or "the layer"
     if run_info.get("input_layer"):

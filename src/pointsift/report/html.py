@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from html import escape
 
+from ..vocabulary import STATUSES
 from .assets import CSS, JS
 from .figures import marker_svg
 from .hood import neighbourhood_svg
@@ -26,7 +27,7 @@ from .sections import (distribution_section, figure_html, lag_pairs_section, loc
 
 __all__ = ["render", "format_number"]
 
-STATUS_WORDS = ("suspect", "review", "ok", "unscreened")
+STATUS_WORDS = STATUSES
 _NUM = ' class="num"'
 
 _STATUS_MEANING = {

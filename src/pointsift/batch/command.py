@@ -1,0 +1,73 @@
+"""What ``pointsift batch`` does, without click: plan, run, summary."""
+
+from __future__ import annotations
+
+import os
+import sys
+from collections.abc import Sequence
+
+from ..errors import ConfigError
+from .outcomes import BatchResult
+from .plan import load_plan, plan_from_args
+from .progress import make_progress
+from .runner import run_batch
+
+__all__ = ["run_command"]
+
+
+def run_command(
+    inputs: Sequence[str],
+    *,
+    out_dir: str | os.PathLike | None = None,
+    jobs: int | None = None,
+    force: bool = False,
+    quiet: bool = False,
+    report: bool = False,
+    layers: Sequence[str] = (),
+    by: str | None = None,
+    x: str | None = None,
+    y: str | None = None,
+    options: dict | None = None,
+    stream=None,
+) -> BatchResult:
+    """What ``pointsift batch`` does, without click: plan, run, summary.
+
+    One argument ending in ``.toml`` is a plan; anything else is the direct
+    form (files, globs, directories) and needs ``options["value"]`` and
+    ``out_dir``. Screen options and ``layers``/``by``/``x``/``y`` belong in
+    the plan when one is given.
+
+    Returns
+    -------
+    BatchResult
+        ``exit_code`` gives the process exit code (0, 3 or 130).
+
+    Raises
+    ------
+    ConfigError
+        The plan or arguments cannot be used (exit code 2).
+    """
+    options = {k: v for k, v in (options or {}).items() if v is not None and v != ()}
+    if len(inputs) == 1 and str(inputs[0]).lower().endswith(".toml"):
+        given = sorted(options) + [name for name, v in (("--layer", layers), ("--by", by), ("--x", x), ("--y", y),
+                                                        ("--report", report)) if v]
+        if given:
+            raise ConfigError(
+                f"With a plan, screen options belong in the plan; remove {', '.join(given)} from the command "
+                "line or put them in [defaults] of the plan. Only --out-dir, --jobs, --force and -q apply."
+            )
+        plan = load_plan(inputs[0], out_dir=out_dir, jobs=jobs)
+    else:
+        if not inputs:
+            raise ConfigError("Give a plan (PLAN.toml) or input files, globs or folders.")
+        if "value" not in options:
+            raise ConfigError("Name the value column with --value COLUMN (or give a PLAN.toml).")
+        if out_dir is None:
+            raise ConfigError("Name the output folder with --out-dir DIR (or give a PLAN.toml that sets out_dir).")
+        plan = plan_from_args(list(inputs), out_dir=out_dir, options=options, layers=list(layers) or None, by=by,
+                              x=x, y=y, report=report, jobs=jobs or 1)
+    progress = make_progress(quiet, stream)
+    result = run_batch(plan, force=force, progress=progress)
+    if not quiet:
+        print(result.summary(), file=stream if stream is not None else sys.stderr, flush=True)
+    return result

@@ -1,0 +1,217 @@
+"""``pointsift describe``: summary figures, stem-and-leaf, strips, trend and variogram of one input."""
+
+from __future__ import annotations
+
+import math
+import os
+from pathlib import Path
+
+import click
+
+from ..errors import ConfigError
+from ..record import run_record
+from ..vocabulary import SUSPECT, direction_words
+from .options import LENGTH, config_from_options, screen_options
+from .screen import check_report_paths
+
+__all__ = ["describe"]
+
+
+def _number(value) -> str:
+    return "n/a" if value is None or not math.isfinite(value) else f"{value:.4g}"
+
+
+def _parse_directions(ctx, param, value):
+    try:
+        directions = tuple(float(part) for part in str(value).split(",") if part.strip())
+    except ValueError:
+        raise click.BadParameter(f"{value!r} is not a comma-separated list of azimuths in degrees, e.g. '90,0'.")
+    if not directions:
+        raise click.BadParameter("give at least one azimuth, e.g. '90' for west-east strips.")
+    return directions
+
+
+def _echo_description(description, value_column: str, where: str) -> None:
+    prepared = description.prepared
+    s = description.summary
+    n_rows = prepared.n
+    click.echo(f"Described {n_rows} rows of {value_column!r} in {where}: {s.n} used, {n_rows - s.n} unscreened.")
+    click.echo(f"Distances in {prepared.work_crs.name} ({prepared.work_crs.to_string()}).")
+    for note in prepared.notes:
+        click.echo(f"Note: {note}")
+    click.echo(
+        f"Values: mean {_number(s.mean)}, median {_number(s.median)}, sd {_number(s.sd)} "
+        f"and variance {_number(s.variance)} (n - 1 denominator)"
+    )
+    click.echo(
+        f"  min {_number(s.min)}, 5% {_number(s.p05)}, 25% {_number(s.p25)}, 75% {_number(s.p75)}, "
+        f"95% {_number(s.p95)}, max {_number(s.max)} (percentiles by linear interpolation); IQR {_number(s.iqr)}"
+    )
+    click.echo(f"  robust sd: IQR/1.349 = {_number(s.robust_sd_iqr)}, 1.4826 x MAD = {_number(s.robust_sd_mad)}")
+    click.echo(
+        f"  skewness {_number(s.skewness)} (adjusted Fisher-Pearson G1), "
+        f"excess kurtosis {_number(s.kurtosis)} (adjusted G2)"
+    )
+    if description.shift is not None:
+        shift = description.shift
+        kept = shift.without_suspects
+        click.echo(
+            f"Without the {shift.n_suspects} suspect row{'s' if shift.n_suspects != 1 else ''}: "
+            f"mean {_number(kept.mean)} (moves {shift.mean_shift:+.4g}), sd {_number(kept.sd)} (moves {shift.sd_shift:+.4g})"
+        )
+    if description.unscreened:
+        click.echo("Unscreened, by reason:")
+        for reason, count in list(description.unscreened.items())[:5]:
+            click.echo(f"  {count} x {reason}")
+    click.echo("")
+    click.echo(description.stem_leaf.text())
+    click.echo("")
+    strips = description.strips
+    click.echo(f"Strips (flagged when |u| > {strips.flag_u:g}; u is calibrated for each strip's own n):")
+    table = strips.table
+    ids = prepared.ids
+    for direction, width in strips.widths.items():
+        part = table[table["direction"] == direction]
+        judged = int(part["u"].notna().sum())
+        flagged = part[part["flagged"]]
+        click.echo(
+            f"  {direction_words(direction, form='strips')}, {width:g} m wide: {len(part)} strips, "
+            f"{judged} judged, {len(flagged)} flagged"
+        )
+        for _, row in flagged.iterrows():
+            click.echo(
+                f"    strip {row['strip']}: n {row['n']}, mean {_number(row['mean'])}, median {_number(row['median'])}, "
+                f"u {row['u']:+.2f}; extreme value {_number(row['extreme_value'])} at {ids[int(row['extreme_row'])]}"
+            )
+    info = description.trend_info
+    if description.trend is not None:
+        share, robust = info["variance_explained"], info["robust_variance_explained"]
+        if math.isfinite(share) and math.isfinite(robust):
+            click.echo(
+                f"Trend: {info['method']} explains {100 * share:.1f} % of the variance "
+                f"(robust share {100 * robust:.1f} %)."
+            )
+        else:
+            click.echo(f"Trend: {info['method']}; the share of variance explained is undefined (the values do not vary).")
+    else:
+        click.echo(f"Trend: {info.get('note', 'none requested')}.")
+
+
+@click.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
+@screen_options
+@click.option("--out", "out_path", default=None, type=click.Path(dir_okay=False), help="Also write the strips layer and summary tables to this GeoPackage (.gpkg).")
+@click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
+@click.option("--strips", "directions", default="90,0", callback=_parse_directions, help="Strip directions: azimuths in degrees along which strips run, comma-separated; 90 west-east, 0 south-north (default 90,0).")
+@click.option("--strip-width", type=LENGTH, default=None, help="Strip width, e.g. 500m (default: from the point density).")
+@click.option("--min-strip-points", type=click.IntRange(5, None), default=5, help="Smaller strips are too small to judge (default 5).")
+@click.option("--stem-unit", type=click.FloatRange(min=0, min_open=True), default=None, help="Stem unit of the stem-and-leaf display, a power of ten (default: chosen).")
+@click.option("--stem-split", type=click.Choice(["1", "2", "5"]), default=None, help="Lines per stem (default: chosen).")
+@click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")
+@click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png, strips.png and the variogram figures into.")
+@click.option("--with-screen", is_flag=True, help="Screen first, and also summarise without the suspect rows.")
+@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
+@click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
+@click.pass_context
+def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, directions, strip_width,
+             min_strip_points, stem_unit, stem_split, bin_width, figures_dir, with_screen, report_path=None,
+             summary_json_path=None, **options):
+    """Describe INPUT: summary figures, stem-and-leaf display, strip statistics
+    across the area and the regional trend. Reads INPUT exactly as 'screen' does."""
+    from ..explore import describe as describe_prepared
+
+    config = config_from_options(options)
+    check_report_paths(report_path, summary_json_path, overwrite)
+    if figures_dir is not None and not Path(figures_dir).is_dir():
+        raise ConfigError(f"--figures folder {figures_dir!r} does not exist. Create it first or choose another folder.")
+    result, prepared, source, suspects, where = _read(input_path, layer, x_column, y_column, config, with_screen)
+    description = describe_prepared(
+        prepared,
+        directions=directions,
+        strip_width=strip_width,
+        min_strip_n=min_strip_points,
+        trend=config.detrend,
+        lag_count=config.lag_count,
+        lag_width=config.lag_width,
+        stem_unit=stem_unit,
+        split=int(stem_split) if stem_split else None,
+        suspect_mask=suspects,
+        figures=figures_dir is not None,
+        bin_width=bin_width,
+        value_label=config.value,
+        seed=config.seed,
+        screen=result,
+    )
+    quiet = bool(ctx.obj.get("quiet"))
+    if not quiet:
+        _echo_description(description, config.value, where)
+    if figures_dir is not None:
+        _save_figures(description, figures_dir, quiet)
+    record = run_record(
+        "describe",
+        config=config,
+        prepared=prepared,
+        source=source,
+        output_path=out_path,
+        strip_widths_m={f"{d:g}": w for d, w in description.strips.widths.items()},
+        trend=description.trend_info,
+        variogram=(
+            {"values": description.variogram_basis, **description.variogram.run_info()}
+            if description.variogram is not None else {"note": "no variogram: too few usable points"}
+        ),
+    )
+    if out_path is not None:
+        from ..explore import description_layers
+        from ..io import run_info_table, write_geopackage
+
+        layers = description_layers(description)
+        layers["run_info"] = run_info_table(record)
+        written = write_geopackage(out_path, layers, overwrite=overwrite, protect=(os.fspath(input_path),))
+        if not quiet:
+            click.echo(f"Wrote {written} (layers {', '.join(layers)}).")
+    if report_path is not None or summary_json_path is not None:
+        from ..report import build_report
+
+        # a description with a screen of its own carries the screen's record
+        report = build_report(description=description, run_info=record if result is None else None)
+        for path in report.write(report_path, summary_json_path, protect=(os.fspath(input_path),)).values():
+            if not quiet:
+                click.echo(f"Wrote {path}.")
+
+
+def _read(input_path, layer, x_column, y_column, config, with_screen):
+    """Read and prepare INPUT (screening it first with --with-screen); which rows are suspect, if known."""
+    from ..io import read_points
+    from ..prepare import prepare
+
+    frame, source = read_points(input_path, layer=layer, x=x_column, y=y_column, crs=config.crs)
+    where = f"layer {source.layer!r} of {source.path!r}" if source.layer else repr(source.path)
+    result = suspects = None
+    if "screen_status" in frame.columns:
+        # A screened layer: summarise without the rows it already calls suspect.
+        suspects = (frame["screen_status"] == SUSPECT).to_numpy()
+        prepared = prepare(frame, config, where=where)
+    elif with_screen:
+        from ..pipeline import screen_frame
+
+        result = screen_frame(frame, config, source=source)
+        suspects = (result.frame["screen_status"] == SUSPECT).to_numpy()
+        prepared = result.prepared
+    else:
+        prepared = prepare(frame, config, where=where)
+    return result, prepared, source, suspects, where
+
+
+_FIGURE_FILES = (("histogram", "histogram.png"), ("strip_profiles", "strips.png"), ("variogram", "variogram.png"),
+                 ("variogram_cloud", "variogram_cloud.png"), ("sqrt_difference_cloud", "sqrt_difference_cloud.png"))
+
+
+def _save_figures(description, figures_dir, quiet: bool) -> None:
+    saved = []
+    for name, file_name in _FIGURE_FILES:
+        if name in description.figures:
+            description.figures[name].savefig(os.path.join(figures_dir, file_name), dpi=150)
+            saved.append(file_name)
+    if not quiet and saved:
+        click.echo(f"Wrote {', '.join(saved[:-1])} and {saved[-1]} to {figures_dir}." if len(saved) > 1
+                   else f"Wrote {saved[0]} to {figures_dir}.")
