@@ -45,6 +45,7 @@ import numpy as np
 import pandas as pd
 
 from .config import ScreenConfig
+from .vocabulary import FLAGGED, OK, REVIEW, SUSPECT
 
 __all__ = ["decide_readings", "READING_COLUMNS"]
 
@@ -135,7 +136,7 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         moved_far = rep & moved & (shift > nearest)
         moved_near = rep & moved & ~moved_far
         camp_z = camp["z"]
-        camp_flag = np.isin(camp["status"], ("suspect", "review"))
+        camp_flag = np.isin(camp["status"], FLAGGED)
     # the campaign screen's suspects that the well's own history explains: as far from the neighbours in most campaigns
     well_key = pd.Series(np.where(rep & np.isfinite(camp_z), np.arange(n), -1))
     persistent = np.zeros(n, dtype=bool)
@@ -163,7 +164,7 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         score = np.fmax(score, np.where(outside, np.abs(history["range_z"]) * sz / _FAR_Z, 0.0))
         score = np.fmax(score, np.where(moved_far | copied_s, sz, np.where(constant | broken | moved_near | span_review, rz, 0.0)))
     score = np.where(capped, 0.5 * score, score)
-    judged = rep & (np.isin(camp["status"], ("suspect", "review", "ok")) | np.isfinite(z_in) | np.isfinite(span_z) | history["judged"])
+    judged = rep & (np.isin(camp["status"], (SUSPECT, REVIEW, OK)) | np.isfinite(z_in) | np.isfinite(span_z) | history["judged"])
     status = np.where(~judged, "unscreened", np.where(suspect, "suspect", np.where(review_any | capped, "review", "ok"))).astype(object)
     score = np.where(judged, np.round(score, 3), np.nan)
 
@@ -276,7 +277,7 @@ def _reasons(*, n, reasons, rep, represented_by, campaign_code, labels, values, 
         if flags["capped"][i]:
             parts.append(f"but the neighbours changed together (median {_g(c['nb_median'][i])}): evidence of a real change "
                          "(for example a new pumping centre), so review at most; check before correcting")
-        if camp["status"][i] in ("suspect", "review", "ok"):
+        if camp["status"][i] in (SUSPECT, REVIEW, OK):
             sentence = f"campaign screen: {camp['reasons'][i]}"
             if flags["persistent"][i]:
                 sentence += (f"; but this well sits as far from its neighbours in most campaigns (median z = {typical_z[i]:.1f}): "
