@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import logging
 import math
 import multiprocessing
@@ -176,6 +177,19 @@ class _StopRequest:
             signal.signal(signal.SIGINT, self._previous)
 
 
+@contextlib.contextmanager
+def _no_interrupt():
+    """Ignore Ctrl-C for a moment."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
 def _mp_context():
     """Worker processes that do not inherit the parent's threads or open files.
 
@@ -240,20 +254,23 @@ def run_batch(
             shutil.rmtree(stale, ignore_errors=True)
         staging = out_dir / f"{_STAGING_PREFIX}{os.getpid()}"
         staging.mkdir(exist_ok=True)
-        try:
-            units, outcomes, interrupted = _run_units(plan, out_dir, staging, jobs, force, progress)
-        finally:
-            shutil.rmtree(staging, ignore_errors=True)
-            progress.close()
-        if interrupted and not units:  # stopped while listing the inputs: keep the previous index
-            raise KeyboardInterrupt
-        final: list[UnitOutcome] = []
-        for unit, outcome in zip(units, outcomes):
-            if outcome is None:
-                outcome = UnitOutcome(unit=unit, outcome=NOT_RUN, message="not run: the batch was stopped by Ctrl-C.")
-            final.append(outcome)
-        result = BatchResult(outcomes=final, seconds=0.0, interrupted=interrupted)
-        result.index_csv, result.index_gpkg = write_index(final, out_dir)
+        with contextlib.ExitStack() as shield:
+            try:
+                units, outcomes, interrupted = _run_units(plan, out_dir, staging, jobs, force, progress)
+            finally:
+                # from here a Ctrl-C pressed again must not lose the index (this takes well under a second)
+                shield.enter_context(_no_interrupt())
+                shutil.rmtree(staging, ignore_errors=True)
+                progress.close()
+            if interrupted and not units:  # stopped while listing the inputs: keep the previous index
+                raise KeyboardInterrupt
+            final: list[UnitOutcome] = []
+            for unit, outcome in zip(units, outcomes):
+                if outcome is None:
+                    outcome = UnitOutcome(unit=unit, outcome=NOT_RUN, message="not run: the batch was stopped by Ctrl-C.")
+                final.append(outcome)
+            result = BatchResult(outcomes=final, seconds=0.0, interrupted=interrupted)
+            result.index_csv, result.index_gpkg = write_index(final, out_dir)
     finally:
         lock.unlink(missing_ok=True)
     result.seconds = time.perf_counter() - started
