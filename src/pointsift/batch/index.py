@@ -6,7 +6,7 @@ import os
 from collections.abc import Sequence
 from pathlib import Path
 
-from ..io import atomic_write
+from ..io import atomic_write, write_geopackage
 from ..vocabulary import STATUSES
 from .outcomes import UnitOutcome
 
@@ -99,8 +99,7 @@ def write_index(outcomes: Sequence[UnitOutcome], out_dir: str | os.PathLike) -> 
     frame = index_frame(outcomes)
     csv_path = out / f"{INDEX_STEM}.csv"
     gpkg_path = out / f"{INDEX_STEM}.gpkg"
-    # both files are complete before either replaces the previous index
-    with atomic_write(csv_path, suffix=".csv.part") as tmp_csv, atomic_write(gpkg_path, suffix=".part.gpkg") as tmp_gpkg:
-        frame.drop(columns=frame.geometry.name).to_csv(tmp_csv, index=False, lineterminator="\n")
-        frame.to_file(tmp_gpkg, layer=INDEX_LAYER, driver="GPKG", engine="pyogrio")
+    with atomic_write(csv_path) as part:
+        frame.drop(columns=frame.geometry.name).to_csv(part, index=False, lineterminator="\n")
+    write_geopackage(gpkg_path, {INDEX_LAYER: frame}, overwrite=True)
     return csv_path, gpkg_path
