@@ -19,7 +19,7 @@ def test_cli_plan_error_exit_2_and_direct_form(tmp_path, capsys):
     plan.write_text('[defaults]\nvalue = "level_m"\ngraph = "ring"\n[[input]]\npath = "a.gpkg"\n')
     assert main(["batch", str(plan), "--out-dir", str(tmp_path / "o")]) == 2
     err = capsys.readouterr().err
-    assert "plan.toml line 3, [defaults], key 'graph': graph 'ring' is not known; choose one of knn, band." in err
+    assert "plan.toml line 3, [defaults], key 'graph': 'ring' is not known; choose one of knn, band." in err
     assert not (tmp_path / "o").exists()  # nothing was run
     assert main(["batch", str(tmp_path / "a.gpkg"), "--out-dir", str(tmp_path / "o")]) == 2
     assert "--value COLUMN" in capsys.readouterr().err

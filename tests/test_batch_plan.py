@@ -159,7 +159,7 @@ def test_plan_from_args_builds_the_same_plan_as_toml(tmp_path):
                                      options={"value": "level_m", "k": 8}, by="well")
     assert from_args.inputs[0].config == from_toml.inputs[0].config
     assert from_args.inputs[0].by == from_toml.inputs[0].by == "well"
-    with pytest.raises(ConfigError, match="command line, \\[defaults\\], key 'k': k must be a whole number from 3 to 100"):
+    with pytest.raises(ConfigError, match="k=1 is outside the range: it must be a whole number from 3 to 100"):
         batch.plan_from_args([str(tmp_path / "a.gpkg")], out_dir=tmp_path / "out", options={"value": "v", "k": 1})
 
 

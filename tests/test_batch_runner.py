@@ -273,3 +273,24 @@ def test_reports_beside_outputs_and_resumed_like_outputs(tmp_path):
     assert main(["-q", "batch", str(tmp_path / "a.gpkg"), "--value", "level_m", "--permutations", "99",
                  "--out-dir", str(tmp_path / "direct"), "--report"]) == 0
     assert (tmp_path / "direct" / "a.html").exists()
+
+
+def test_a_rerun_without_reports_leaves_no_stale_report(tmp_path):
+    # Issue 9, item 5: an earlier run's report must not sit beside a refreshed output it does not describe.
+    import sqlite3
+
+    from pointsift.cli import main
+
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points(80, seed=2)})
+    out_dir = tmp_path / "out"
+    direct = ["-q", "batch", str(tmp_path / "a.gpkg"), "--value", "level_m", "--permutations", "99", "--out-dir", str(out_dir)]
+    assert main([*direct, "--report"]) == 0
+    assert (out_dir / "a.html").exists() and read_index(out_dir).loc["a", "report"] == "a.html"
+    assert main([*direct, "--suspect-z", "4"]) == 0  # new options, no report: the output is refreshed
+    index = read_index(out_dir)
+    assert index.loc["a", "outcome"] == "done" and index.loc["a", "report"] == ""
+    assert "removed the report of an earlier run" in index.loc["a", "message"]
+    assert not (out_dir / "a.html").exists()
+    # the GeoPackage index says the same (read with sqlite3, independently of pointsift and pyogrio)
+    with sqlite3.connect(out_dir / "batch-index.gpkg") as db:
+        assert db.execute("SELECT output, report FROM batch_index WHERE unit = 'a'").fetchone() == ("a.gpkg", "")

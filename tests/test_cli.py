@@ -233,11 +233,11 @@ def test_graph_options_reach_the_run(tmp_path, capfd, wells_gpkg, options, kind)
     [
         (["--neighbours", "1"], r"--neighbours"),
         (["--bogus"], r"No such option .--bogus"),
-        (["--within", "5 parsecs"], r"--within '5 parsecs' is not a length"),
+        (["--within", "5 parsecs"], r"Invalid value for '--within': '5 parsecs' is not a length"),
         (["--no-data", "abc"], r"'abc' is not a comma-separated list of numbers"),
         (["--fdr", "2"], r"--fdr"),
-        (["--detrend", "cubic"], r"'cubic' is not one of"),
-        (["--review-z", "9", "--suspect-z", "8"], r"review_z \(9\.0\) must be positive and below suspect_z \(8\.0\)"),
+        (["--detrend", "cubic"], r"'cubic' is not known; choose one of none, auto"),
+        (["--review-z", "9", "--suspect-z", "8"], r"--review-z \(9\.0\) must be positive and below --suspect-z \(8\.0\)"),
     ],
 )
 def test_usage_errors_exit_2(tmp_path, capfd, wells_gpkg, options, message):

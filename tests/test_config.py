@@ -61,22 +61,24 @@ def test_defaults_are_the_documented_ones():
 @pytest.mark.parametrize(
     "changes, message",
     [
-        ({"value": ""}, r"value must name the column"),
-        ({"graph": "delaunay"}, r"graph 'delaunay' is not known; choose one of knn, band"),
-        ({"graph": "band"}, r"graph='band' needs a band distance: pass within"),
-        ({"detrend": "cubic"}, r"detrend 'cubic' is not known; choose one of none, auto, surface1, surface2, polish"),
-        ({"k": 2}, r"k must be a whole number from 3 to 100, got 2"),
-        ({"k": 8.5}, r"k must be a whole number from 3 to 100, got 8\.5"),
-        ({"min_neighbours": 1}, r"min_neighbours must be a whole number from 2 to 50, got 1"),
-        ({"k": 5, "min_neighbours": 6}, r"min_neighbours \(6\) cannot exceed k \(5\)"),
-        ({"permutations": 10}, r"permutations must be a whole number from 99 to 100000, got 10"),
-        ({"fdr": 1.0}, r"fdr must be between 0 and 1, got 1\.0"),
-        ({"review_z": 6.0}, r"review_z \(6\.0\) must be positive and below suspect_z \(3\.5\)"),
-        ({"coincident_tolerance": -1.0}, r"coincident_tolerance must be zero or positive, got -1\.0"),
-        ({"lag_count": 0}, r"lag_count must be a whole number from 1 to 1000, got 0"),
-        ({"lag_width": -5.0}, r"lag_width must be positive, got -5\.0"),
-        ({"max_distance": 0.0}, r"max_distance must be positive, got 0\.0"),
-        ({"coincident_value_tolerance": -2.0}, r"coincident_value_tolerance must be positive, got -2\.0"),
+        ({"value": ""}, r"value= must name the column"),
+        ({"graph": "delaunay"}, r"graph='delaunay' is not known; choose one of knn, band"),
+        ({"graph": "band"}, r"graph='band' needs a band distance: pass within='5km'"),
+        ({"detrend": "cubic"}, r"detrend='cubic' is not known; choose one of none, auto, surface1, surface2, polish"),
+        ({"k": 2}, r"k=2 is outside the range: it must be a whole number from 3 to 100"),
+        ({"k": 8.5}, r"k=8\.5 is not a whole number"),
+        ({"min_neighbours": 1}, r"min_neighbours=1 is outside the range: it must be a whole number from 2 to 50"),
+        ({"k": 5, "min_neighbours": 6}, r"min_neighbours= \(6\) cannot exceed k= \(5\)"),
+        ({"permutations": 10}, r"permutations=10 is outside the range: it must be a whole number from 99 to 100000"),
+        ({"fdr": 1.0}, r"fdr=1\.0 is outside the range: it must be between 0 and 1"),
+        ({"review_z": 6.0}, r"review_z= \(6\.0\) must be positive and below suspect_z= \(3\.5\)"),
+        ({"coincident_tolerance": -1.0}, r"coincident_tolerance=-1\.0 is outside the range: it must be zero or positive"),
+        ({"lag_count": 0}, r"lag_count=0 is outside the range: it must be a whole number from 1 to 1000"),
+        ({"lag_width": -5.0}, r"lag_width=-5\.0 is outside the range: it must be positive"),
+        ({"lag_width": "500 leagues"}, r"lag_width='500 leagues' is not a length"),
+        ({"max_distance": 0.0}, r"max_distance=0\.0 is outside the range: it must be positive"),
+        ({"coincident_value_tolerance": -2.0}, r"coincident_value_tolerance=-2\.0 is outside the range: it must be positive"),
+        ({"thousands": "."}, r"thousands='\.' is not known; choose one of ,"),
     ],
 )
 def test_invalid_options_raise_config_error_naming_the_value(changes, message):
@@ -94,7 +96,7 @@ def test_frozen_and_replace_validates_again():
     with pytest.raises(dataclasses.FrozenInstanceError):
         c.k = 5  # type: ignore[misc]
     assert c.replace(k=12).k == 12
-    with pytest.raises(ConfigError, match="k must be a whole number"):
+    with pytest.raises(ConfigError, match="k=500 is outside the range"):
         c.replace(k=500)
 
 
@@ -106,3 +108,33 @@ def test_sentinels_become_floats_and_record_is_plain_json():
     assert json.loads(json.dumps(record)) == record
     assert "extra" not in record and record["sentinels"] == [-1.0, -8888.0]
     assert set(ScreenConfig.option_names()) == set(record)
+
+
+def test_lengths_with_units_are_accepted_everywhere_a_length_is():
+    # a plan's lag_width = "500m" and Python's lag_width="500m" go through one check (issue 9)
+    c = ScreenConfig(value="level_m", lag_width="500m", within="2km", max_distance="1.5 mi", coincident_tolerance="1ft")
+    assert (c.lag_width, c.within, c.coincident_tolerance) == (500.0, 2000.0, 0.3048)  # PROJ unit table factors
+    assert c.max_distance == pytest.approx(1.5 * float(UNITS["mi"].conv_factor), rel=1e-12)
+    assert c.graph == "band"  # a band distance means a distance band, for every caller
+
+
+def test_k_below_4_lowers_min_neighbours_for_every_caller():
+    assert ScreenConfig(value="level_m", k=3).min_neighbours == 3
+    assert ScreenConfig(value="level_m", k=6).min_neighbours == 4
+    assert ScreenConfig(value="level_m", k=3, min_neighbours=2).min_neighbours == 2
+    assert ScreenConfig(value="level_m", within=500.0).min_neighbours == 4
+
+
+@pytest.mark.parametrize(
+    "words, text",
+    [("python", "crs='EPSG:4326'"), ("cli", "--crs EPSG:4326"), ("plan", 'crs = "EPSG:4326"')],
+)
+def test_one_message_names_the_option_in_the_callers_words(words, text):
+    from pointsift.config import caller, spell
+
+    with caller(words):
+        assert spell("crs", "EPSG:4326") == text
+        with pytest.raises(ConfigError) as caught:
+            ScreenConfig(value="level_m", k=2)
+    flag = {"python": "k=2", "cli": "--neighbours 2", "plan": "k = 2"}[words]
+    assert str(caught.value).startswith(f"{flag} is outside the range")

@@ -112,7 +112,7 @@ def test_with_screen_summarises_without_suspects(tmp_path):
     out = tmp_path / "d.gpkg"
     result = CliRunner().invoke(
         cli,
-        ["describe", str(path), "--value", "level_m", "--with-screen", "--permutations", "99", "--out", str(out)],
+        ["describe", str(path), "--value", "level_m", "--with-screen", "--out", str(out)],
     )
     assert result.exit_code == 0, result.output
     assert "Without the" in result.output

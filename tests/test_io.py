@@ -51,7 +51,7 @@ def test_several_layers_without_layer_lists_them(tmp_path):
     write_points(build_wells(20, seed=4), path, layer="autumn_2026")
     before = fingerprint(path)
     # Issue 2: several layers and no --layer -> error listing them.
-    with pytest.raises(InputError, match=r"holds 2 layers: spring_2026, autumn_2026\. Choose one with --layer NAME"):
+    with pytest.raises(InputError, match=r"holds 2 layers: spring_2026, autumn_2026\. Choose one with layer='NAME'"):
         psio.read_points(path)
     gdf, source = psio.read_points(path, layer="autumn_2026")
     assert len(gdf) == 20 and source.layer == "autumn_2026"
@@ -115,9 +115,9 @@ def test_geopackage_attribute_table_with_coordinate_columns(tmp_path):
 def test_csv_explicit_columns_and_errors(tmp_path):
     wells = build_wells(10, seed=6)
     path = write_points(wells, tmp_path / "odd.csv", xy_names=("e_utm", "n_utm"))
-    with pytest.raises(InputError, match=r"no recognisable coordinate columns .* --x COLUMN --y COLUMN\. Columns present: .*e_utm, n_utm"):
+    with pytest.raises(InputError, match=r"no recognisable coordinate columns .* x='COLUMN' y='COLUMN'\. Columns present: .*e_utm, n_utm"):
         psio.read_points(path)
-    with pytest.raises(InputError, match=r"Give both --x and --y"):
+    with pytest.raises(InputError, match=r"Give both x= and y="):
         psio.read_points(path, x="e_utm")
     with pytest.raises(InputError, match=r"has no column 'n_ut'\. Columns present:"):
         psio.read_points(path, x="e_utm", y="n_ut")
@@ -189,7 +189,7 @@ def test_write_geopackage_reads_back_with_sqlite_and_pyogrio(tmp_path):
 def test_existing_output_needs_overwrite_and_stays_untouched(tmp_path):
     out = tmp_path / "out.gpkg"
     out.write_bytes(b"precious earlier result")
-    with pytest.raises(OutputError, match=r"exists\. Pass --overwrite to replace it"):
+    with pytest.raises(OutputError, match=r"exists\. Pass overwrite=True to replace it"):
         psio.write_geopackage(out, _layers())
     assert out.read_bytes() == b"precious earlier result"
     psio.write_geopackage(out, _layers(), overwrite=True)
@@ -271,7 +271,7 @@ def test_real_disk_full_is_an_output_problem(tmp_path):
     )
     done = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stdout + done.stderr
-    assert "Free disk space or choose another --out folder" in done.stdout
+    assert "Free disk space or choose another output folder" in done.stdout
     assert leftovers(tmp_path) == [] and not (tmp_path / "out.gpkg").exists()
 
 
@@ -287,7 +287,7 @@ def test_second_run_creating_the_same_output_fails(tmp_path, monkeypatch):
         return real(*args, **kwargs)
 
     monkeypatch.setattr(psio, "_write_layer", other_run_finishes_first)
-    with pytest.raises(OutputError, match=r"exists\. Pass --overwrite to replace it"):
+    with pytest.raises(OutputError, match=r"exists\. Pass overwrite=True to replace it"):
         psio.write_geopackage(out, _layers())
     assert out.read_bytes() == b"the other run's result"
     assert leftovers(tmp_path) == []

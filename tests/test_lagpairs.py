@@ -205,7 +205,7 @@ def test_screen_classes_equal_brute_force(angle_tol, lag_tol):
     rng = np.random.default_rng(1)
     values = rng.normal(size=len(xy))
     values[3] = np.nan
-    screen = screen_lag_pairs(xy, values, first_lag=10.0, lag_count=3, lag_tolerance=lag_tol,
+    screen = screen_lag_pairs(xy, values, first_lag=10.0, pair_lag_count=3, lag_tolerance=lag_tol,
                               angle_tolerance=angle_tol, min_class_pairs=1)
     ref = brute_classes(xy.tolist(), values.tolist(), 10.0, 3, lag_tol, screen.directions, angle_tol)
     for j in range(len(screen.directions)):
@@ -441,7 +441,7 @@ def test_ids_are_object_strings_so_memory_does_not_grow_with_the_longest_id():
     ids[7] = "X" * 100_000  # fixed-width: 400 x 100,000 x 4 bytes = 160 MB
     tracemalloc.start()
     try:
-        screen = screen_lag_pairs(xy, values, ids=ids, first_lag=300.0, lag_count=6)
+        screen = screen_lag_pairs(xy, values, ids=ids, first_lag=300.0, pair_lag_count=6)
         layer = screen.pair_table(flagged_only=False)
         _, peak = tracemalloc.get_traced_memory()
     finally:

@@ -107,7 +107,7 @@ def test_unparseable_values_are_unscreened_rows_not_crashes():
 
 def test_missing_value_column_lists_numeric_columns():
     wells = build_wells(10)
-    with pytest.raises(InputError, match=r"has no column 'level'\. Numeric columns present: level_m, depth_m\. Choose one with --value COLUMN"):
+    with pytest.raises(InputError, match=r"has no column 'level'\. Numeric columns present: level_m, depth_m\. Choose one with value='COLUMN'"):
         _prepare(wells, value="level")
 
 
@@ -179,7 +179,7 @@ def test_multipoint_single_part_is_used_multi_part_is_unscreened():
 
 def test_no_crs_names_the_crs_option():
     wells = build_wells(10, crs=None)
-    with pytest.raises(CRSError, match=r"has no CRS, so distances cannot be computed\. Pass --crs EPSG:XXXX"):
+    with pytest.raises(CRSError, match=r"has no CRS, so distances cannot be computed\. Pass crs='EPSG:XXXX'"):
         _prepare(wells)
     p = _prepare(wells, crs="EPSG:32633")
     assert p.input_crs.equals(CRS.from_epsg(32633)) and p.usable.all()
@@ -187,7 +187,7 @@ def test_no_crs_names_the_crs_option():
 
 def test_crs_option_contradicting_the_layer():
     wells = build_wells(10)
-    with pytest.raises(CRSError, match=r"declares EPSG:32633 but --crs says EPSG:32632\. Drop --crs"):
+    with pytest.raises(CRSError, match=r"declares EPSG:32633 but crs= says EPSG:32632\. Drop crs="):
         _prepare(wells, crs="EPSG:32632")
     # the same CRS said twice is fine
     assert _prepare(wells, crs="EPSG:32633").usable.all()
@@ -195,7 +195,7 @@ def test_crs_option_contradicting_the_layer():
 
 def test_unknown_crs_text():
     # Issue 10, item 12: a mistyped CRS is a usage problem (ConfigError, exit 2)
-    with pytest.raises(ConfigError, match=r"--crs 'EPSG:999999' is not a CRS pyproj knows"):
+    with pytest.raises(ConfigError, match=r"crs='EPSG:999999' is not a CRS pyproj knows"):
         _prepare(build_wells(10, crs=None), crs="EPSG:999999")
 
 
@@ -227,7 +227,7 @@ def test_mostly_swapped_longitude_latitude_is_an_error_naming_rows():
 
 def test_projected_coordinates_declared_as_degrees_get_the_projected_hint():
     wells = build_wells(20).set_crs("EPSG:4326", allow_override=True)
-    with pytest.raises(CRSError, match=r"look projected, not degrees: pass the right --crs"):
+    with pytest.raises(CRSError, match=r"look projected, not degrees: pass the right crs="):
         _prepare(wells)
 
 
@@ -306,7 +306,7 @@ def test_automatic_work_crs_distances_match_geodesics(lons, lat_range):
 
 def test_work_crs_option_must_be_metric_projected():
     wells = to_lonlat(build_wells(20))
-    with pytest.raises(ConfigError, match=r"--work-crs 'EPSG:4326' must be a projected CRS in metres"):
+    with pytest.raises(ConfigError, match=r"work_crs='EPSG:4326' must be a projected CRS in metres"):
         _prepare(wells, work_crs="EPSG:4326")
     p = _prepare(wells, work_crs="EPSG:3035")
     assert p.work_crs.equals(CRS.from_epsg(3035))

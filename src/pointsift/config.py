@@ -1,20 +1,55 @@
-"""Screening options: one frozen dataclass tree, validated once at the edge.
+"""Options: one table, one frozen config per command, validated once at the edge.
 
-The command line and batch plans build a :class:`ScreenConfig`; the pipeline
-only reads it.
+Every option is declared once, in :data:`OPTIONS`: its name (the Python
+keyword and the plan key), its command-line flag, its kind (text, whole
+number, number, length, list of numbers, choice, true/false), its range or
+choices, its default, its help and the commands that take it. From that one
+table come
+
+* the command-line options of each command (:func:`pointsift.cli.options`),
+* the keys a batch plan accepts and their checks (:mod:`pointsift.batch.plan`),
+* the validation of :class:`ScreenConfig` and :class:`DescribeConfig`
+  (the Python API).
+
+Messages name an option in the caller's own words (:func:`spell`): ``--crs``
+on the command line, ``crs=`` in Python, ``crs`` in a plan. The caller is set
+by the edge that reads the options (:func:`caller`); library code only calls
+:func:`spell`. Adding an option is one entry here (and a field in the config
+that holds it); DEVELOPERS.md says how.
 """
 
 from __future__ import annotations
 
+import contextvars
 import dataclasses
+import math
 import re
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 from .errors import ConfigError
 
-__all__ = ["ScreenConfig", "parse_length", "DEFAULT_SENTINELS"]
+__all__ = [
+    "Option",
+    "OPTIONS",
+    "COMMANDS",
+    "ScreenConfig",
+    "DescribeConfig",
+    "OptionError",
+    "parse_length",
+    "convert",
+    "spell",
+    "caller",
+    "options_for",
+    "plan_keys",
+    "DEFAULT_SENTINELS",
+]
 
 DEFAULT_SENTINELS: tuple[float, ...] = (-9999.0, -999.0, -99999.0)
+
+#: Commands whose options come from the table.
+COMMANDS = ("screen", "describe", "batch")
 
 _LENGTH_UNITS = {
     "": 1.0,
@@ -24,8 +59,299 @@ _LENGTH_UNITS = {
     "mi": 1609.344,
 }
 
-_GRAPH_KINDS = ("knn", "band")
-_DETREND = ("none", "auto", "surface1", "surface2", "polish")
+_KINDS = ("text", "int", "float", "length", "numbers", "choice", "bool", "texts")
+
+
+class OptionError(ConfigError):
+    """An option's value is wrong; ``option`` names it and ``problem`` says what is wrong,
+    without the name (for callers that give the place themselves: click, a plan)."""
+
+    def __init__(self, message: str, option: str | None = None, problem: str | None = None,
+                 names: tuple[str, ...] = ()) -> None:
+        super().__init__(message)
+        self.option = option
+        self.problem = problem or message
+        #: every option a rule joining options names (first: the one to change)
+        self.names = names or ((option,) if option else ())
+
+
+# --------------------------------------------------------------------------- the caller's words
+
+_CALLER: contextvars.ContextVar[str] = contextvars.ContextVar("pointsift_caller", default="python")
+_CALLERS = ("python", "cli", "plan")
+
+
+@contextmanager
+def caller(kind: str) -> Iterator[None]:
+    """Name options in messages as ``kind`` does: ``"cli"``, ``"plan"`` or ``"python"`` (the default).
+
+    Examples
+    --------
+    >>> with caller("cli"):
+    ...     spell("k", 8)
+    '--neighbours 8'
+    >>> spell("k", 8)
+    'k=8'
+    """
+    if kind not in _CALLERS:
+        raise ValueError(f"caller {kind!r} is not known; choose one of {', '.join(_CALLERS)}.")
+    token = _CALLER.set(kind)
+    try:
+        yield
+    finally:
+        _CALLER.reset(token)
+
+
+def current_caller() -> str:
+    """``"python"``, ``"cli"`` or ``"plan"``: whose words messages use now."""
+    return _CALLER.get()
+
+
+def spell(name: str, example=None) -> str:
+    """An option as the current caller writes it, optionally with an example value.
+
+    Parameters
+    ----------
+    name : str
+        Option name (the Python keyword), e.g. ``"crs"``; names not in the
+        table are spelled the same way (``"out"`` -> ``--out``).
+    example : object, optional
+        A value to show, e.g. ``"EPSG:4326"``.
+
+    Returns
+    -------
+    str
+        ``--crs EPSG:4326`` (command line), ``crs='EPSG:4326'`` (Python),
+        ``crs = "EPSG:4326"`` (plan).
+
+    Examples
+    --------
+    >>> spell("crs", "EPSG:4326")
+    "crs='EPSG:4326'"
+    >>> with caller("plan"):
+    ...     spell("crs", "EPSG:4326")
+    'crs = "EPSG:4326"'
+    """
+    option = OPTIONS.get(name)
+    kind = _CALLER.get()
+    if kind == "cli":
+        flag = "--" + (option.flag if option is not None else name.replace("_", "-"))
+        return flag if example is None or example is True else f"{flag} {example}"
+    if kind == "plan":
+        if example is None:
+            return name
+        shown = f'"{example}"' if isinstance(example, str) else str(example).lower() if isinstance(example, bool) else str(example)
+        return f"{name} = {shown}"
+    return f"{name}=" if example is None else f"{name}={example!r}"
+
+
+# --------------------------------------------------------------------------- the table
+
+
+@dataclass(frozen=True)
+class Option:
+    """One option, declared once.
+
+    Attributes
+    ----------
+    name : str
+        Python keyword and plan key.
+    kind : str
+        ``text``, ``texts`` (a list of text), ``int``, ``float``, ``length``
+        (metres; text with a unit such as ``"5km"`` accepted), ``numbers``
+        (a list of numbers), ``choice``, ``bool``.
+    help : str
+        One line for ``--help``; the default is added from ``default_text``.
+    default : object
+        Value when the option is not given (None: not set, or derived).
+    default_text : str, optional
+        How ``--help`` states the default (e.g. "from the spacing").
+    config : str or None
+        The config holding it: ``"screen"`` (:class:`ScreenConfig`),
+        ``"describe"`` (:class:`DescribeConfig`) or None (read by the
+        command itself: layer, coordinate columns, batch settings).
+    commands : tuple of str
+        Commands offering it on the command line.
+    plan : tuple of str
+        Plan tables accepting it as a key: ``"batch"``, ``"defaults"``, ``"input"``.
+    flag : str, optional
+        Command-line flag without the dashes (default: the name with dashes).
+    dest : str, optional
+        Parameter name of the click command function (default: the name).
+    minimum, maximum : float, optional
+        Range; ``min_open`` / ``max_open`` exclude the bound itself.
+    choices : tuple, optional
+        Valid values of a ``choice``.
+    required : tuple of str
+        Commands where the command line must give it.
+    multiple : bool
+        The flag may be repeated (a list).
+    nonempty : bool
+        A list must hold at least one item.
+    metavar : str, optional
+        Placeholder in ``--help`` (default from the kind).
+    short : str, optional
+        One-letter alias of the flag (``-j``).
+    """
+
+    name: str
+    kind: str
+    help: str
+    default: object = None
+    default_text: str | None = None
+    config: str | None = "screen"
+    commands: tuple[str, ...] = ("screen", "describe", "batch")
+    plan: tuple[str, ...] = ("defaults", "input")
+    flag: str | None = None
+    dest: str | None = None
+    minimum: float | None = None
+    maximum: float | None = None
+    min_open: bool = False
+    max_open: bool = False
+    choices: tuple | None = None
+    required: tuple[str, ...] = ()
+    multiple: bool = False
+    nonempty: bool = False
+    metavar: str | None = None
+    short: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.kind not in _KINDS:
+            raise ValueError(f"option {self.name}: kind {self.kind!r} is not one of {', '.join(_KINDS)}")
+        if self.flag is None:
+            object.__setattr__(self, "flag", self.name.replace("_", "-"))
+        if self.dest is None:
+            object.__setattr__(self, "dest", self.name)
+
+    def help_text(self) -> str:
+        """The ``--help`` line, with the default."""
+        if self.default_text is not None:
+            return f"{self.help} (default {self.default_text})."
+        if self.default is None or self.kind == "bool":
+            return f"{self.help}."
+        shown = ",".join(f"{v:g}" for v in self.default) if self.kind == "numbers" else (
+            f"{self.default:g}" if isinstance(self.default, float) else str(self.default))
+        return f"{self.help} (default {shown})."
+
+
+_READ = ("screen", "describe", "batch")
+_SCREEN = ("screen", "batch")
+
+OPTIONS: dict[str, Option] = {
+    option.name: option
+    for option in (
+        # --- reading the layer (every command)
+        Option("value", "text", "Column holding the measured values", required=("screen", "describe"), metavar="COLUMN"),
+        Option("id", "text", "Column identifying each point in reasons and tables", default_text="the row number",
+               flag="id", dest="id_column", metavar="COLUMN"),
+        Option("crs", "text", "CRS of the coordinates when the file has none, e.g. EPSG:4326", metavar="CRS"),
+        Option("work_crs", "text", "Metric CRS to compute distances in", default_text="chosen from the data", metavar="CRS"),
+        Option("sentinels", "numbers", "Comma-separated no-data codes ('none' for none)", default=DEFAULT_SENTINELS,
+               flag="no-data", metavar="CODES"),
+        Option("coincident_tolerance", "length", "Points closer than this are one spot", default=0.5, default_text="0.5m",
+               minimum=0.0),
+        # --- the screen
+        Option("graph", "choice", "Neighbour graph: k nearest or a distance band", choices=("knn", "band"),
+               default_text="band when a band distance is given, else knn", commands=()),
+        Option("k", "int", "k nearest neighbours", default=10, flag="neighbours", minimum=3, maximum=100,
+               commands=_SCREEN),
+        Option("within", "length", "Use every neighbour within this distance instead of k nearest, e.g. 5km",
+               minimum=0.0, min_open=True, commands=_SCREEN),
+        Option("min_neighbours", "int", "Fewer neighbours leaves a point unscreened", minimum=2, maximum=50,
+               default_text="4, or k when k is below 4", commands=_SCREEN),
+        Option("max_distance", "length", "Ignore neighbours farther than this", minimum=0.0, min_open=True,
+               default_text="from the spacing", commands=_SCREEN),
+        Option("coincident_value_tolerance", "float",
+               "Records at one spot disagree when their values differ by more", minimum=0.0, min_open=True,
+               default_text="1 local robust sd", flag="duplicate-tolerance", commands=_SCREEN),
+        Option("permutations", "int", "Permutations for local Moran's I / Gi*", default=999, minimum=99,
+               maximum=100_000, commands=_SCREEN),
+        Option("seed", "int", "Seed of all random draws", default=20261202, default_text="fixed, runs repeat"),
+        Option("fdr", "float", "False discovery rate", default=0.05, minimum=0.0, maximum=1.0, min_open=True,
+               max_open=True, commands=_SCREEN),
+        Option("suspect_z", "float", "Standardized residual for 'suspect'", default=3.5, minimum=0.0, min_open=True,
+               commands=_SCREEN),
+        Option("review_z", "float", "Standardized residual for 'review'", default=3.0, minimum=0.0, min_open=True,
+               default_text="3", commands=_SCREEN),
+        Option("detrend", "choice", "Regional trend removed before the cluster statistics", default="auto",
+               choices=("none", "auto", "surface1", "surface2", "polish")),
+        Option("lag_count", "int", "Number of variogram lag classes", minimum=1, maximum=1000,
+               default_text="from the extent and spacing"),
+        Option("lag_width", "length", "Width of the variogram lag classes (0, W], (W, 2W], ..., e.g. 500m",
+               minimum=0.0, min_open=True, default_text="from the extent and spacing"),
+        Option("thousands", "choice", "',' says commas in text columns group thousands (\"1,234.5\")", choices=(",",),
+               default_text="decided per column from its cells", commands=()),
+        # --- describe
+        Option("directions", "numbers", "Strip directions: azimuths in degrees along which strips run, "
+               "comma-separated; 90 west-east, 0 south-north", default=(90.0, 0.0), config="describe",
+               commands=("describe",), plan=(), flag="strips", nonempty=True, metavar="AZIMUTHS"),
+        Option("strip_width", "length", "Strip width, e.g. 500m", minimum=0.0, min_open=True,
+               default_text="from the point density", config="describe", commands=("describe",), plan=()),
+        Option("min_strip_points", "int", "Smaller strips are too small to judge", default=5, minimum=5,
+               config="describe", commands=("describe",), plan=()),
+        Option("stem_unit", "float", "Stem unit of the stem-and-leaf display, a power of ten", minimum=0.0,
+               min_open=True, default_text="chosen", config="describe", commands=("describe",), plan=()),
+        Option("stem_split", "choice", "Lines per stem", choices=(1, 2, 5), default_text="chosen",
+               config="describe", commands=("describe",), plan=()),
+        Option("bin_width", "float", "Histogram bin width", minimum=0.0, min_open=True,
+               default_text="Freedman-Diaconis", config="describe", commands=("describe",), plan=()),
+        # --- which part of the input (read by the commands)
+        Option("layer", "text", "Layer to read from a multi-layer file (GeoPackage)", config=None,
+               commands=("screen", "describe"), plan=(), metavar="NAME"),
+        Option("layers", "texts", "GeoPackage layer to screen; repeat for several", default_text="every layer",
+               config=None, commands=("batch",), flag="layer", multiple=True, metavar="NAME"),
+        Option("x", "text", "Column of x / longitude / easting (tables)", config=None, dest="x_column",
+               metavar="COLUMN"),
+        Option("y", "text", "Column of y / latitude / northing (tables)", config=None, dest="y_column",
+               metavar="COLUMN"),
+        Option("by", "text", "Screen each group of this column on its own, e.g. network_id or a campaign date column",
+               config=None, commands=("batch",), metavar="COLUMN"),
+        # --- batch settings
+        Option("path", "texts", "Files, globs or folders of one plan entry", config=None, commands=(), plan=("input",)),
+        Option("name", "text", "Output name used instead of the file's stem", config=None, commands=(),
+               plan=("input",)),
+        Option("report", "bool", "Also write a self-contained HTML report beside each output", default=False,
+               config=None, commands=("batch",), plan=("batch", "defaults", "input"), dest="batch_report"),
+        Option("out_dir", "text", "Folder for the outputs and the batch index", config=None, commands=("batch",),
+               plan=("batch",), metavar="DIR"),
+        Option("jobs", "int", "Worker processes", default=1, default_text="1, or the plan's jobs", minimum=1,
+               config=None, commands=("batch",), plan=("batch",), short="j"),
+    )
+}
+
+
+def options_for(command: str) -> list[Option]:
+    """The options ``command`` offers on the command line, in table order."""
+    if command not in COMMANDS:
+        raise ValueError(f"command {command!r} is not known; choose one of {', '.join(COMMANDS)}.")
+    return [option for option in OPTIONS.values() if command in option.commands]
+
+
+def plan_keys(table: str) -> tuple[str, ...]:
+    """Keys a plan table (``"batch"``, ``"defaults"``, ``"input"``) accepts, in table order."""
+    return tuple(option.name for option in OPTIONS.values() if table in option.plan)
+
+
+# --------------------------------------------------------------------------- values
+
+
+def _length_metres(text: str | float | int) -> float:
+    if isinstance(text, bool):
+        raise ValueError(text)
+    if isinstance(text, (int, float)):
+        return float(text)
+    match = re.fullmatch(r"\s*([+-]?[0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([a-zA-Z]*)\s*", str(text))
+    if not match or match.group(2).lower() not in _LENGTH_UNITS:
+        raise ValueError(text)
+    return round(float(match.group(1)) * _LENGTH_UNITS[match.group(2).lower()], 9)
+
+
+_LENGTH_HELP = (f"Write a number with an optional unit ({', '.join(u for u in _LENGTH_UNITS if u)}), "
+                "for example '5km' or '750m'.")
+
+
+def _length_problem(text) -> str:
+    return f"{text!r} is not a length. {_LENGTH_HELP}"
 
 
 def parse_length(text: str | float | int, name: str = "length") -> float:
@@ -41,7 +367,7 @@ def parse_length(text: str | float | int, name: str = "length") -> float:
     Returns
     -------
     float
-        The length in metres.
+        The length in metres (positive).
 
     Examples
     --------
@@ -50,25 +376,181 @@ def parse_length(text: str | float | int, name: str = "length") -> float:
     >>> parse_length("250 ft")
     76.2
     """
-    if isinstance(text, (int, float)):
-        value = float(text)
-    else:
-        match = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([a-zA-Z]*)\s*", str(text))
-        if not match or match.group(2).lower() not in _LENGTH_UNITS:
-            raise ConfigError(
-                f"{name} {text!r} is not a length. Write a number with an optional unit "
-                f"({', '.join(u for u in _LENGTH_UNITS if u)}), for example '5km' or '750m'."
-            )
-        value = float(match.group(1)) * _LENGTH_UNITS[match.group(2).lower()]
-        value = round(value, 9)
+    try:
+        value = _length_metres(text)
+    except ValueError:
+        raise ConfigError(f"{name} {_length_problem(text)}") from None
     if not value > 0:
         raise ConfigError(f"{name} must be a positive length, got {text!r}.")
     return value
 
 
+def _number_words(value) -> str:
+    return f"{value:g}" if isinstance(value, float) else str(value)
+
+
+def _range_words(option: Option) -> str | None:
+    """``"a whole number from 3 to 100"``, ``"positive"``... for messages; None when unbounded."""
+    low, high = option.minimum, option.maximum
+    if low is None and high is None:
+        return None
+    if option.kind == "int":
+        if high is None:
+            return f"a whole number, {_number_words(low)} or more"
+        return f"a whole number from {_number_words(low)} to {_number_words(high)}"
+    if low is not None and high is not None:
+        return f"between {_number_words(low)} and {_number_words(high)}"
+    if low == 0:
+        return "positive" if option.min_open else "zero or positive"
+    return f"above {_number_words(low)}" if option.min_open else f"{_number_words(low)} or more"
+
+
+def _in_range(option: Option, value: float) -> bool:
+    if isinstance(value, float) and math.isnan(value):
+        return False
+    if option.minimum is not None and (value < option.minimum or (option.min_open and value == option.minimum)):
+        return False
+    if option.maximum is not None and (value > option.maximum or (option.max_open and value == option.maximum)):
+        return False
+    return True
+
+
+_NO_VALUE = object()
+
+
+def _fail(option: Option, problem: str, value=_NO_VALUE, said: str | None = None) -> OptionError:
+    """The error of one option. ``problem`` says what is wrong for a caller that names the option
+    itself (click, a plan's place); the message names it with ``value`` and says ``said``."""
+    if value is _NO_VALUE:
+        message = f"{spell(option.name)} {problem}"
+    else:
+        message = f"{spell(option.name, value)} {said}"
+    return OptionError(message, option=option.name, problem=problem)
+
+
+def _convert_kind(option: Option, value):
+    """Value of the option's kind, or raise OptionError (no range check)."""
+    kind, text = option.kind, isinstance(value, str)
+    if kind == "text":
+        if text and value:
+            return value
+        raise _fail(option, f"expects text (a quoted string), got {value!r}.", value, "is not text (a quoted string).")
+    if kind == "texts":
+        items = [value] if text else list(value) if isinstance(value, (list, tuple)) else None
+        if items and all(isinstance(v, str) and v for v in items):
+            return tuple(items)
+        raise _fail(option, f"expects a list of text such as [\"wells\"], got {value!r}.")
+    if kind == "bool":
+        if isinstance(value, bool):
+            return value
+        raise _fail(option, f"expects true or false, got {value!r}.", value, "is not true or false.")
+    if kind == "int":
+        if isinstance(value, int) and not isinstance(value, bool):
+            return value
+        if text and re.fullmatch(r"\s*[+-]?\d+\s*", value):
+            return int(value)
+        raise _fail(option, f"expects a whole number, got {value!r}.", value, "is not a whole number.")
+    if kind == "float":
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            return float(value)
+        try:
+            if text:
+                return float(value)
+        except ValueError:
+            pass
+        raise _fail(option, f"expects a number, got {value!r}.", value, "is not a number.")
+    if kind == "length":
+        try:
+            return _length_metres(value)
+        except (ValueError, TypeError):
+            raise _fail(option, _length_problem(value), value, f"is not a length. {_LENGTH_HELP}") from None
+    if kind == "numbers":
+        if text:
+            if value.strip().lower() in ("", "none"):
+                value = []
+            else:
+                try:
+                    value = [float(part) for part in value.split(",") if part.strip()]
+                except ValueError:
+                    said = "is not a comma-separated list of numbers, e.g. '-9999,-999'."
+                    raise _fail(option, f"{value!r} {said}", value, said) from None
+        if isinstance(value, (list, tuple)):
+            try:
+                if all(not isinstance(v, bool) for v in value):
+                    return tuple(float(v) for v in value)
+            except (TypeError, ValueError):
+                pass
+        raise _fail(option, f"expects a list of numbers such as [-9999, -999], got {value!r}.")
+    # choice
+    for choice in option.choices:
+        if value == choice or (text and str(choice) == value.strip()):
+            return choice
+    said = f"is not known; choose one of {', '.join(map(str, option.choices))}."
+    raise _fail(option, f"{value!r} {said}", value, said)
+
+
+def convert(name: str, value):
+    """Check one option's value on its own and return it in its kind (lengths in metres).
+
+    None (not given) passes through. The message of a wrong value names the
+    option as the current :func:`caller` writes it, the value, and what is
+    valid.
+
+    Parameters
+    ----------
+    name : str
+        Option name, a key of :data:`OPTIONS`.
+    value : object
+        As given: text from the command line, a TOML value, a Python value.
+
+    Returns
+    -------
+    object
+
+    Raises
+    ------
+    OptionError
+
+    Examples
+    --------
+    >>> convert("lag_width", "500m"), convert("k", "12"), convert("sentinels", "-9999,-1")
+    (500.0, 12, (-9999.0, -1.0))
+    >>> convert("k", 2)
+    Traceback (most recent call last):
+    ...
+    pointsift.config.OptionError: k=2 is outside the range: it must be a whole number from 3 to 100.
+    """
+    option = OPTIONS[name]
+    if value is None:
+        return None
+    converted = _convert_kind(option, value)
+    if option.nonempty and not converted:
+        raise _fail(option, "needs at least one value.")
+    if option.kind in ("int", "float", "length") and not _in_range(option, converted):
+        raise _fail(option, f"must be {_range_words(option)}, got {value!r}.", value, f"is outside the range: it must be {_range_words(option)}.")
+    return converted
+
+
+def _check_fields(config) -> None:
+    """Convert every table option a config holds (in place: the configs are frozen)."""
+    for item in dataclasses.fields(config):
+        if item.name in OPTIONS:
+            object.__setattr__(config, item.name, convert(item.name, getattr(config, item.name)))
+
+
+# --------------------------------------------------------------------------- configs
+
+
+def _joint_error(names: tuple[str, ...], text: str) -> OptionError:
+    return OptionError(text, option=names[0], problem=text, names=names)
+
+
 @dataclass(frozen=True)
 class ScreenConfig:
-    """All options of a screen.
+    """All options of a screen (and of reading a layer, which describe shares).
+
+    Every field is declared in :data:`OPTIONS` (kind, range, default, help);
+    this class only holds the values and the rules that join two options.
 
     Parameters
     ----------
@@ -82,21 +564,24 @@ class ScreenConfig:
         CRS of the input coordinates when the layer has none (e.g. ``"EPSG:4326"``).
     work_crs : str or None
         Metric CRS to compute distances in; chosen automatically for geographic input.
-    coincident_tolerance : float
-        Points closer than this (metres) are treated as records at one spot.
+    coincident_tolerance : float or str
+        Points closer than this (metres, or a length such as ``"1m"``) are
+        treated as records at one spot.
     coincident_value_tolerance : float or None
         Two coincident records whose values differ by more than this disagree.
         None derives it from the data (1 robust local standard deviation).
-    graph : {"knn", "band"}
-        Neighbour graph kind: k nearest neighbours or a distance band.
+    graph : {"knn", "band"} or None
+        Neighbour graph kind: k nearest neighbours or a distance band. None
+        (the default) chooses ``"band"`` when ``within`` is given, else ``"knn"``.
     k : int
         Number of neighbours for ``graph="knn"``.
-    within : float or None
-        Band distance in metres for ``graph="band"``.
-    min_neighbours : int
-        Fewer usable neighbours than this leaves a point ``unscreened``.
-    max_distance : float or None
-        Neighbours farther than this (metres) are ignored; a point with no
+    within : float, str or None
+        Band distance for ``graph="band"`` (metres or a length such as ``"5km"``).
+    min_neighbours : int or None
+        Fewer usable neighbours than this leaves a point ``unscreened``. None
+        (the default) is 4, or ``k`` when k nearest neighbours with k below 4.
+    max_distance : float, str or None
+        Neighbours farther than this are ignored; a point with no
         neighbour within it is ``unscreened``. None derives it from the spacing.
     permutations : int
         Conditional permutations for Local Moran's I and Getis-Ord Gi*.
@@ -114,13 +599,22 @@ class ScreenConfig:
         ``"none"``, reported).
     lag_count, lag_width : int, float or None
         Variogram lag classes ``(0, W], (W, 2W], ...``: their number and width
-        in metres. None derives them from the extent and spacing
-        (:func:`pointsift.methods.variogram.lag_edges`).
+        (metres or a length such as ``"500m"``). None derives them from the
+        extent and spacing (:func:`pointsift.methods.variogram.lag_edges`).
+        ``lag_count`` means only this; the lag-pair screen's own classes are
+        ``pair_lag_count`` of :func:`pointsift.methods.lagpairs.screen_lag_pairs`.
     thousands : {None, ","}
         ``","`` says commas in text columns group thousands ("1,234.5").
         None decides once per column from all its cells: a column whose
         comma-bearing cells each hold one comma and no dot uses decimal
         commas ("319,910" is 319.91) (:func:`pointsift.prepare.comma_convention`).
+
+    Examples
+    --------
+    >>> ScreenConfig(value="level_m", within="2km").graph
+    'band'
+    >>> ScreenConfig(value="level_m", k=3).min_neighbours
+    3
     """
 
     value: str
@@ -130,10 +624,10 @@ class ScreenConfig:
     work_crs: str | None = None
     coincident_tolerance: float = 0.5
     coincident_value_tolerance: float | None = None
-    graph: str = "knn"
+    graph: str | None = None
     k: int = 10
     within: float | None = None
-    min_neighbours: int = 4
+    min_neighbours: int | None = None
     max_distance: float | None = None
     permutations: int = 999
     seed: int = 20261202
@@ -148,40 +642,28 @@ class ScreenConfig:
 
     def __post_init__(self) -> None:
         if not isinstance(self.value, str) or not self.value:
-            raise ConfigError("value must name the column holding the measurements, e.g. value='level_m'.")
-        if self.graph not in _GRAPH_KINDS:
-            raise ConfigError(f"graph {self.graph!r} is not known; choose one of {', '.join(_GRAPH_KINDS)}.")
-        if self.graph == "band" and self.within is None:
-            raise ConfigError("graph='band' needs a band distance: pass within (e.g. --within 5km).")
-        if self.detrend not in _DETREND:
-            raise ConfigError(f"detrend {self.detrend!r} is not known; choose one of {', '.join(_DETREND)}.")
-        if not (isinstance(self.k, int) and 3 <= self.k <= 100):
-            raise ConfigError(f"k must be a whole number from 3 to 100, got {self.k!r}.")
-        if not (isinstance(self.min_neighbours, int) and 2 <= self.min_neighbours <= 50):
-            raise ConfigError(f"min_neighbours must be a whole number from 2 to 50, got {self.min_neighbours!r}.")
-        if self.graph == "knn" and self.min_neighbours > self.k:
-            raise ConfigError(f"min_neighbours ({self.min_neighbours}) cannot exceed k ({self.k}).")
-        if not (isinstance(self.permutations, int) and 99 <= self.permutations <= 100_000):
-            raise ConfigError(f"permutations must be a whole number from 99 to 100000, got {self.permutations!r}.")
-        if not 0 < self.fdr < 1:
-            raise ConfigError(f"fdr must be between 0 and 1, got {self.fdr!r}.")
-        if not 0 < self.review_z < self.suspect_z:
-            raise ConfigError(
-                f"review_z ({self.review_z}) must be positive and below suspect_z ({self.suspect_z})."
+            raise OptionError(
+                f"{spell('value')} must name the column holding the measurements, e.g. {spell('value', 'level_m')}.",
+                option="value", problem="must name the column holding the measurements.",
             )
-        if self.coincident_tolerance < 0:
-            raise ConfigError(f"coincident_tolerance must be zero or positive, got {self.coincident_tolerance!r}.")
-        if self.lag_count is not None and not (
-            isinstance(self.lag_count, int) and not isinstance(self.lag_count, bool) and 1 <= self.lag_count <= 1000
-        ):
-            raise ConfigError(f"lag_count must be a whole number from 1 to 1000, got {self.lag_count!r}.")
-        for name in ("within", "max_distance", "coincident_value_tolerance", "lag_width"):
-            value = getattr(self, name)
-            if value is not None and not value > 0:
-                raise ConfigError(f"{name} must be positive, got {value!r}.")
-        if self.thousands not in (None, ","):
-            raise ConfigError(f"thousands must be ',' (commas group thousands) or left unset, got {self.thousands!r}.")
-        object.__setattr__(self, "sentinels", tuple(float(s) for s in self.sentinels))
+        _check_fields(self)
+        for name in ("sentinels", "coincident_tolerance", "k", "permutations", "seed", "fdr", "suspect_z",
+                     "review_z", "detrend"):
+            if getattr(self, name) is None:
+                raise _fail(OPTIONS[name], "needs a value; leave it out for the default.")
+        graph = self.graph if self.graph is not None else ("band" if self.within is not None else "knn")
+        object.__setattr__(self, "graph", graph)
+        if graph == "band" and self.within is None:
+            raise _joint_error(("graph", "within"),
+                               f"{spell('graph', 'band')} needs a band distance: pass {spell('within', '5km')}.")
+        if self.min_neighbours is None:
+            object.__setattr__(self, "min_neighbours", min(4, self.k) if graph == "knn" else 4)
+        if graph == "knn" and self.min_neighbours > self.k:
+            raise _joint_error(("min_neighbours", "k"), f"{spell('min_neighbours')} ({self.min_neighbours}) "
+                               f"cannot exceed {spell('k')} ({self.k}).")
+        if not self.review_z < self.suspect_z:
+            raise _joint_error(("review_z", "suspect_z"), f"{spell('review_z')} ({self.review_z}) must be positive "
+                               f"and below {spell('suspect_z')} ({self.suspect_z}).")
 
     def replace(self, **changes) -> "ScreenConfig":
         """Return a copy with some options changed (validated again)."""
@@ -196,5 +678,58 @@ class ScreenConfig:
 
     @classmethod
     def option_names(cls) -> tuple[str, ...]:
-        """Names of every option, for plan validation messages."""
+        """Names of every option."""
         return tuple(f.name for f in dataclasses.fields(cls) if f.name != "extra")
+
+
+@dataclass(frozen=True)
+class DescribeConfig:
+    """The options ``describe`` adds to reading the layer (declared in :data:`OPTIONS`).
+
+    Parameters
+    ----------
+    directions : tuple of float
+        Strip directions, azimuths in degrees (90 west-east, 0 south-north).
+    strip_width : float, str or None
+        Strip width (None: from the point density).
+    min_strip_points : int
+        Strips with fewer points are too small to judge.
+    stem_unit : float or None
+        Stem unit of the stem-and-leaf display (None: chosen).
+    stem_split : {1, 2, 5} or None
+        Lines per stem (None: chosen).
+    bin_width : float or None
+        Histogram bin width (None: Freedman-Diaconis).
+    """
+
+    directions: tuple[float, ...] = (90.0, 0.0)
+    strip_width: float | None = None
+    min_strip_points: int = 5
+    stem_unit: float | None = None
+    stem_split: int | None = None
+    bin_width: float | None = None
+
+    def __post_init__(self) -> None:
+        _check_fields(self)
+
+    def as_record(self) -> dict:
+        """Options as plain values, for the run record."""
+        record = dataclasses.asdict(self)
+        record["directions"] = list(self.directions)
+        return record
+
+
+#: Which config class holds the options of each ``Option.config`` value.
+CONFIG_CLASSES = {"screen": ScreenConfig, "describe": DescribeConfig}
+
+
+def _table_matches_configs() -> None:
+    # every field of a config is in the table under that config, and the reverse (checked at import)
+    for key, cls in CONFIG_CLASSES.items():
+        fields = {f.name for f in dataclasses.fields(cls)} - {"extra"}
+        declared = {o.name for o in OPTIONS.values() if o.config == key}
+        if fields != declared:
+            raise RuntimeError(f"{cls.__name__} fields and OPTIONS disagree: {sorted(fields ^ declared)}")
+
+
+_table_matches_configs()

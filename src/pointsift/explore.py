@@ -19,6 +19,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
+from .config import spell
 from .errors import ConfigError, InputError
 from .methods.stemleaf import StemLeaf, stem_and_leaf_table
 from .methods.strips import DEFAULT_DIRECTIONS, MIN_STRIP_N, StripResult, strip_summary
@@ -183,7 +184,7 @@ def describe(
     if not usable.any():
         raise InputError(
             f"No row has both a location and a value (first reason: {prepared.unscreened_reason[0]}). "
-            "Check --value and the coordinates."
+            f"Check {spell('value')} and the coordinates."
         )
     values = np.where(usable, prepared.values, np.nan)
     summary = global_summary(values[usable])

@@ -86,9 +86,20 @@ class NeighbourGraph:
         return adjacency
 
     def to_libpysal(self):
-        """The same neighbours as a ``libpysal.graph.Graph`` (binary weights)."""
-        from libpysal.graph import Graph
+        """The same neighbours as a ``libpysal.graph.Graph`` (binary weights).
 
+        For work that carries on in the PySAL ecosystem (spatial regression,
+        other local statistics) with exactly the neighbours the screen used.
+        libpysal is an optional dependency: ``pip install pointsift[pysal]``.
+
+        Returns
+        -------
+        libpysal.graph.Graph
+        """
+        try:
+            from libpysal.graph import Graph
+        except ImportError:
+            raise ImportError("to_libpysal needs libpysal: install it with pip install 'pointsift[pysal]'.") from None
         return Graph.from_sparse(self.to_sparse())
 
 

@@ -21,6 +21,7 @@ from pathlib import Path
 import geopandas as gpd
 import pandas as pd
 
+from .config import spell
 from .errors import InputError, OutputError, plain_library_text
 from .tables import LOCATION_REASONS, READ_NOTES, free_name, points_from_columns, read_csv
 
@@ -284,7 +285,7 @@ def read_points(
         if len(layers) > 1:
             raise InputError(
                 f"{str(path)!r} holds {len(layers)} layers: {', '.join(layers)}. "
-                "Choose one with --layer NAME."
+                f"Choose one with {spell('layer', 'NAME')}."
             )
         layer = layers[0] if layers else None
     elif layer not in layers:
@@ -352,9 +353,9 @@ def _atomic_target(out_path: Path, overwrite: bool, protect: tuple[str, ...]) ->
         raise OutputError(f"Output {str(out_path)!r} must be a GeoPackage file ending in .gpkg.")
     check_output_paths([("Output", out_path)], protect)
     if out_path.exists() and not overwrite:
-        raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.")
+        raise OutputError(f"Output {str(out_path)!r} exists. Pass {spell('overwrite', True)} to replace it, or choose another path.")
     if not out_path.parent.exists():
-        raise OutputError(f"Folder {str(out_path.parent)!r} does not exist. Create it first or choose another --out path.")
+        raise OutputError(f"Folder {str(out_path.parent)!r} does not exist. Create it first or choose another output path.")
     return out_path
 
 
@@ -423,7 +424,7 @@ def _write_problem(out_path: Path, exc: BaseException) -> OutputError | None:
     else:
         return None
     return OutputError(
-        f"Cannot write {str(out_path)!r} ({why}). Free disk space or choose another --out folder, "
+        f"Cannot write {str(out_path)!r} ({why}). Free disk space or choose another output folder, "
         "and check that the folder is writable; nothing was written."
     )
 
@@ -437,13 +438,13 @@ def _move_into_place(temporary: str, out_path: Path, overwrite: bool) -> None:
     try:
         os.link(temporary, out_path)
     except FileExistsError:
-        raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.") from None
+        raise OutputError(f"Output {str(out_path)!r} exists. Pass {spell('overwrite', True)} to replace it, or choose another path.") from None
     except OSError:
         # no hard links on this file system: claim the name exclusively, then replace it
         try:
             claim = os.open(out_path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
         except FileExistsError:
-            raise OutputError(f"Output {str(out_path)!r} exists. Pass --overwrite to replace it, or choose another path.") from None
+            raise OutputError(f"Output {str(out_path)!r} exists. Pass {spell('overwrite', True)} to replace it, or choose another path.") from None
         os.close(claim)
         os.replace(temporary, out_path)
         return

@@ -15,7 +15,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
-from .config import ScreenConfig
+from .config import ScreenConfig, spell
 from .errors import InputError
 from .graph import NeighbourGraph, build_graph
 from .io import SourceInfo
@@ -265,7 +265,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     if not prepared.usable.any():
         raise InputError(
             f"No row of {where} has both a location and a value "
-            f"(first reason: {prepared.unscreened_reason[0]}). Check --value and the coordinates."
+            f"(first reason: {prepared.unscreened_reason[0]}). Check {spell('value')} and the coordinates."
         )
 
     t = time.perf_counter()

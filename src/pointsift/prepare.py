@@ -19,7 +19,7 @@ import pandas as pd
 import shapely
 from pyproj import CRS, Transformer
 
-from .config import ScreenConfig
+from .config import ScreenConfig, spell
 from .errors import InputError
 from .graph import coincident_groups
 from .tables import LOCATION_REASONS, READ_NOTES, comma_convention, numbers_from_text
@@ -231,12 +231,12 @@ def prepare(frame: gpd.GeoDataFrame, config: ScreenConfig, *, where: str = "the 
         numeric = [str(c) for c in frame.columns if c != frame.geometry.name and pd.api.types.is_numeric_dtype(frame[c].dtype)]
         raise InputError(
             f"{where} has no column {config.value!r}. Numeric columns present: {', '.join(numeric) or 'none'}. "
-            "Choose one with --value COLUMN."
+            f"Choose one with {spell('value', 'COLUMN')}."
         )
     if config.id is not None and config.id not in frame.columns:
         raise InputError(
             f"{where} has no id column {config.id!r}. Columns present: "
-            f"{', '.join(str(c) for c in frame.columns if c != frame.geometry.name)}. Choose one with --id COLUMN or leave it out."
+            f"{', '.join(str(c) for c in frame.columns if c != frame.geometry.name)}. Choose one with {spell('id', 'COLUMN')} or leave it out."
         )
     n = len(frame)
     if n == 0:
@@ -273,7 +273,7 @@ def prepare(frame: gpd.GeoDataFrame, config: ScreenConfig, *, where: str = "the 
         first = next((r for r in geo_reasons if r), "no location")
         raise InputError(
             f"No row of {where} has a usable location (first reason: {first}). "
-            "Check the coordinate columns (--x, --y), the geometry and the CRS."
+            f"Check the coordinate columns ({spell('x')}, {spell('y')}), the geometry and the CRS."
         )
     work_crs = work_crs_for(input_crs, x[located], y[located], config, where, notes)
 

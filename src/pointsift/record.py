@@ -24,14 +24,14 @@ CAUTION = (
     "local regulations and licensed professional practice for decisions about water supply."
 )
 
-_LIBRARIES = ("numpy", "scipy", "pandas", "geopandas", "shapely", "pyproj", "pyogrio", "libpysal", "esda")
+_LIBRARIES = ("numpy", "scipy", "pandas", "geopandas", "shapely", "pyproj", "pyogrio", "pyarrow")
 
 
 def library_versions() -> dict:
     """Versions of pointsift, Python, the libraries it stands on and GDAL.
 
     Read from installed metadata once per process, without importing the
-    libraries (esda and libpysal are slow to import).
+    libraries.
 
     Returns
     -------

@@ -15,6 +15,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 
+from .config import spell
 from .errors import InputError, plain_library_text
 
 __all__ = ["LOCATION_REASONS", "READ_NOTES", "comma_convention", "numbers_from_text", "read_csv", "points_from_columns", "free_name"]
@@ -155,7 +156,7 @@ def read_csv(path: Path) -> pd.DataFrame:
 
 def _find_coordinate_columns(columns, x: str | None, y: str | None, where: str) -> tuple[str, str]:
     if (x is None) != (y is None):
-        raise InputError("Give both --x and --y (the coordinate columns), or neither to detect them.")
+        raise InputError(f"Give both {spell('x')} and {spell('y')} (the coordinate columns), or neither to detect them.")
     if x is not None:
         missing = [c for c in (x, y) if c not in columns]
         if missing:
@@ -167,7 +168,7 @@ def _find_coordinate_columns(columns, x: str | None, y: str | None, where: str) 
             return lower[cx], lower[cy]
     raise InputError(
         f"{where} has no recognisable coordinate columns (looked for pairs such as x/y, lon/lat, "
-        f"longitude/latitude, easting/northing). Name them with --x COLUMN --y COLUMN. "
+        f"longitude/latitude, easting/northing). Name them with {spell('x', 'COLUMN')} {spell('y', 'COLUMN')}. "
         f"Columns present: {', '.join(map(str, columns))}."
     )
 
@@ -193,8 +194,8 @@ def _swapped_names_note(cx, cy) -> str | None:
     lon_like = {"lon", "long", "lng", "longitude", "x", "easting", "east", "x_coord", "xcoord", "coord_x", "point_x"}
     if str(cx).lower() in lat_like and str(cy).lower() in lon_like:
         return (
-            f"--x names column {str(cx)!r} and --y column {str(cy)!r}: x is the longitude or easting and y the "
-            "latitude or northing, so the columns look swapped. Check --x and --y."
+            f"{spell('x')} names column {str(cx)!r} and {spell('y')} column {str(cy)!r}: x is the longitude or easting and y the "
+            f"latitude or northing, so the columns look swapped. Check {spell('x')} and {spell('y')}."
         )
     return None
 

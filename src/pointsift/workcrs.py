@@ -17,7 +17,7 @@ from pyproj import CRS, Proj, Transformer
 from pyproj.exceptions import CRSError as PyprojCRSError
 from pyproj.exceptions import ProjError
 
-from .config import ScreenConfig
+from .config import ScreenConfig, spell
 from .errors import ConfigError, CRSError
 
 __all__ = [
@@ -86,17 +86,17 @@ def resolve_input_crs(frame, crs_option: str | None, where: str) -> CRS:
             given = CRS.from_user_input(crs_option)
         except PyprojCRSError as exc:
             # a mistyped option is a usage problem (exit 2), not a data problem
-            raise ConfigError(f"--crs {crs_option!r} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.") from exc
+            raise ConfigError(f"{spell('crs', crs_option)} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.") from exc
         if frame.crs is not None and not CRS(frame.crs).equals(given, ignore_axis_order=True):
             raise CRSError(
-                f"{where} declares {CRS(frame.crs).to_string()} but --crs says {given.to_string()}. "
-                "Drop --crs to use the layer's own CRS, or fix the layer."
+                f"{where} declares {CRS(frame.crs).to_string()} but {spell('crs')} says {given.to_string()}. "
+                f"Drop {spell('crs')} to use the layer's own CRS, or fix the layer."
             )
         return given
     if frame.crs is None:
         raise CRSError(
             f"{where} has no CRS, so distances cannot be computed. "
-            "Pass --crs EPSG:XXXX to say what the coordinates are (for example EPSG:4326 for longitude/latitude in degrees)."
+            f"Pass {spell('crs', 'EPSG:XXXX')} to say what the coordinates are (for example EPSG:4326 for longitude/latitude in degrees)."
         )
     return CRS(frame.crs)
 
@@ -115,9 +115,9 @@ def check_geographic(x, y, reasons, ids, where):
     sample = ", ".join(str(ids[r]) for r in np.flatnonzero(bad)[:5])
     if share > 0.5:
         hint = (
-            "Longitude and latitude look swapped: check the coordinate columns (--x is longitude, --y latitude)."
+            f"Longitude and latitude look swapped: check the coordinate columns ({spell('x')} is longitude, {spell('y')} latitude)."
             if swapped[bad].mean() > 0.9
-            else "The coordinates look projected, not degrees: pass the right --crs (for example the UTM zone's EPSG code)."
+            else f"The coordinates look projected, not degrees: pass the right {spell('crs')} (for example the UTM zone's EPSG code)."
         )
         raise CRSError(
             f"{bad.sum()} of {located.sum()} points in {where} lie outside longitude -180..180 / latitude -90..90 "
@@ -202,7 +202,7 @@ def _lonlat_work_crs(input_crs: CRS, x, y, where: str) -> CRS:
     if not finite.any():
         raise CRSError(
             f"No point of {where} can be placed on the globe with {input_crs.to_string()}: the coordinates do "
-            "not fit that CRS. Check the coordinates and the CRS (--crs for a file without one)."
+            f"not fit that CRS. Check the coordinates and the CRS ({spell('crs')} for a file without one)."
         )
     return choose_work_crs(lon[finite], lat[finite])
 
@@ -213,8 +213,8 @@ def work_crs_for(input_crs: CRS, x: np.ndarray, y: np.ndarray, config: ScreenCon
         unit, _ = _unit(input_crs)
         if config.work_crs is not None:
             raise ConfigError(
-                f"--work-crs cannot be used with {where}: its CRS {input_crs.name!r} is a local engineering CRS "
-                "that is not tied to the globe. Leave --work-crs out."
+                f"{spell('work_crs')} cannot be used with {where}: its CRS {input_crs.name!r} is a local engineering CRS "
+                f"that is not tied to the globe. Leave {spell('work_crs')} out."
             )
         if not _is_metre(input_crs):
             raise CRSError(
@@ -227,9 +227,9 @@ def work_crs_for(input_crs: CRS, x: np.ndarray, y: np.ndarray, config: ScreenCon
         try:
             work_crs = CRS.from_user_input(config.work_crs)
         except PyprojCRSError as exc:
-            raise ConfigError(f"--work-crs {config.work_crs!r} is not a CRS pyproj knows. Use a code such as EPSG:32633.") from exc
+            raise ConfigError(f"{spell('work_crs', config.work_crs)} is not a CRS pyproj knows. Use a code such as EPSG:32633.") from exc
         if not work_crs.is_projected or not _is_metre(work_crs):
-            raise ConfigError(f"--work-crs {config.work_crs!r} must be a projected CRS in metres (for example a UTM zone).")
+            raise ConfigError(f"{spell('work_crs', config.work_crs)} must be a projected CRS in metres (for example a UTM zone).")
         return work_crs
     if input_crs.is_projected and _is_metre(input_crs):
         rows = _sample(np.ones(x.size, dtype=bool), x, y)
@@ -287,7 +287,7 @@ def check_area_of_use(x, y, reasons, crs: CRS, where: str, notes: list) -> None:
             raise CRSError(
                 f"The coordinates of {where} look like longitude/latitude in degrees (all within -180..180 and "
                 f"-90..90, inside {area.name}), but its CRS is {crs.name} ({crs.to_string()}), in {_unit(crs)[0]}. "
-                "If they are degrees, set the layer's CRS to EPSG:4326 (or pass --crs EPSG:4326 for a file without a CRS)."
+                f"If they are degrees, set the layer's CRS to EPSG:4326 (or pass {spell('crs', 'EPSG:4326')} for a file without a CRS)."
             )
     try:
         to_lonlat = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
@@ -307,7 +307,7 @@ def check_area_of_use(x, y, reasons, crs: CRS, where: str, notes: list) -> None:
             raise CRSError(
                 f"The coordinates of {where} look like longitude/latitude in degrees (all within -180..180 and "
                 f"-90..90), but its CRS is {crs.name} ({crs.to_string()}), in {_unit(crs)[0]}. If they are degrees, "
-                "set the layer's CRS to EPSG:4326 (or pass --crs EPSG:4326 for a file without a CRS)."
+                f"set the layer's CRS to EPSG:4326 (or pass {spell('crs', 'EPSG:4326')} for a file without a CRS)."
             )
         message = (
             f"{int(outside.sum())} of {int(located.sum())} points of {where} lie far outside the area "

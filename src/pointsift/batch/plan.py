@@ -7,27 +7,15 @@ import glob
 import os
 import re
 import tomllib
-import types
-import typing
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..config import ScreenConfig, parse_length
+from ..config import OPTIONS, OptionError, ScreenConfig, caller, convert, current_caller, plan_keys, spell
 from ..errors import ConfigError
 from .toml_lines import KeyLocator
 
 __all__ = ["InputSpec", "BatchPlan", "parse_plan", "load_plan", "plan_from_args", "suggest"]
-
-# Keys of an [[input]] table that are not screen options.
-_INPUT_KEYS = ("path", "layers", "by", "x", "y", "name", "report")
-# Of those, the ones [defaults] may also set (path and name are per input).
-_DEFAULTABLE_INPUT_KEYS = ("layers", "by", "x", "y", "report")
-_BATCH_KEYS = ("out_dir", "jobs", "report")
-_TOP_KEYS = ("batch", "defaults", "input")
-# Options that take a length ("5km") as well as a number of metres.
-_LENGTH_OPTIONS = ("within", "max_distance", "coincident_tolerance")
-
 
 @dataclass(frozen=True)
 class InputSpec:
@@ -54,6 +42,8 @@ class InputSpec:
         Place in the plan, for messages (e.g. ``"plan.toml line 12, [[input]] #2"``).
     base_dir : Path
         Directory that relative paths are resolved against.
+    words : {"plan", "cli", "python"}
+        Whose words messages about this entry use (:func:`pointsift.config.caller`).
     """
 
     paths: tuple[str, ...]
@@ -66,6 +56,7 @@ class InputSpec:
     report: bool = False
     where: str = ""
     base_dir: Path = Path(".")
+    words: str = "plan"
 
 
 @dataclass(frozen=True)
@@ -130,110 +121,50 @@ def suggest(word: str, choices: Iterable[str]) -> str:
     return f" Did you mean '{close[0]}'?" if close else ""
 
 
-def _option_types() -> dict[str, str]:
-    hints = typing.get_type_hints(ScreenConfig)
-    kinds = {}
-    for name in ScreenConfig.option_names():
-        hint = hints[name]
-        args = typing.get_args(hint) if typing.get_origin(hint) in (typing.Union, types.UnionType) else ()
-        optional = type(None) in args
-        base = ([a for a in args if a is not type(None)] or [hint])[0]
-        if typing.get_origin(base) is tuple:
-            kind = "numbers"
-        elif base is bool:
-            kind = "bool"
-        elif base is int:
-            kind = "int"
-        elif base is float:
-            kind = "float"
-        else:
-            kind = "str"
-        kinds[name] = kind + ("?" if optional else "")
-    return kinds
+_TOP_KEYS = ("batch", "defaults", "input")
+#: Plan tables and the keys each accepts, from the option table.
+_TABLE_KEYS = {table: plan_keys(table) for table in ("batch", "defaults", "input")}
+_FILE_NAME = re.compile(r"[A-Za-z0-9][A-Za-z0-9._\-]*")
 
 
-def _check_option(name: str, value: object, kind: str) -> tuple[object, str | None]:
-    """Convert a plan value for option ``name``; return (value, problem)."""
-    base = kind.rstrip("?")
-    if base == "str":
-        if isinstance(value, str) and value:
-            return value, None
-        return None, f"expects text (a quoted string), got {value!r}."
-    if base == "bool":
-        if isinstance(value, bool):
-            return value, None
-        return None, f"expects true or false, got {value!r}."
-    if base == "int":
-        if isinstance(value, int) and not isinstance(value, bool):
-            return value, None
-        return None, f"expects a whole number, got {value!r}."
-    if base == "numbers":
-        items = value if isinstance(value, list) else None
-        if items is not None and all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in items):
-            return tuple(float(v) for v in items), None
-        return None, f"expects a list of numbers such as [-9999, -999], got {value!r}."
-    # float
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        return float(value), None
-    if name in _LENGTH_OPTIONS and isinstance(value, str):
-        try:
-            return parse_length(value, name), None
-        except ConfigError as exc:
-            return None, str(exc)
-    unit_hint = " or a length such as \"5km\"" if name in _LENGTH_OPTIONS else ""
-    return None, f"expects a number{unit_hint}, got {value!r}."
-
-
-# Options whose valid range depends on another option; checked only together.
-_JOINT_OPTIONS = ("review_z", "suspect_z")
-
-
-def _check_option_alone(name: str, value: object) -> str | None:
-    """Validate one option on its own, so several wrong values are all reported."""
-    if name in _JOINT_OPTIONS or name == "value":
+def _plan_value(key: str, value):
+    """A plan value converted by the option table; plan-only rules for layers and name."""
+    if key == "layers" and value == "all":
         return None
-    # A distance band with a width makes k and min_neighbours independent.
-    neutral = {"value": "_", "graph": "band", "within": 1.0}
-    neutral[name] = value
-    try:
-        ScreenConfig(**neutral)
-    except ConfigError as exc:
-        return str(exc)
-    except (TypeError, ValueError) as exc:
-        return f"{value!r} is not usable for {name}: {exc}"
-    return None
+    if key == "layers" and not isinstance(value, list):
+        raise OptionError("", option=key, problem=f'expects "all" or a list of layer names such as ["wells"], got {value!r}.')
+    converted = convert(key, value)
+    if key == "name" and not _FILE_NAME.fullmatch(converted):
+        raise OptionError("", option=key, problem=(
+            f"{value!r} is not usable as a file name; use letters, digits, '.', '_' and '-' "
+            "(starting with a letter or digit)."))
+    return converted
 
 
-def _check_input_key(key: str, value: object) -> tuple[object, str | None]:
-    if key == "path":
-        if isinstance(value, str) and value:
-            return (value,), None
-        if isinstance(value, list) and value and all(isinstance(v, str) and v for v in value):
-            return tuple(value), None
-        return None, f"expects a file, glob or directory, or a list of them, got {value!r}."
-    if key == "layers":
-        if value == "all":
-            return None, None
-        if isinstance(value, list) and value and all(isinstance(v, str) and v for v in value):
-            return tuple(value), None
-        return None, f'expects "all" or a list of layer names such as ["wells"], got {value!r}.'
-    if key == "report":
-        if isinstance(value, bool):
-            return value, None
-        return None, f"expects true or false, got {value!r}."
-    if isinstance(value, str) and value:
-        if key == "name" and not re.fullmatch(r"[A-Za-z0-9][A-Za-z0-9._\-]*", value):
-            return None, (
-                f"{value!r} is not usable as a file name; use letters, digits, '.', '_' and '-' "
-                "(starting with a letter or digit)."
-            )
-        return value, None
-    return None, f"expects text (a quoted string), got {value!r}."
+def _read_table(errors: _PlanErrors, table, entry: dict, allowed: tuple[str, ...]) -> tuple[dict, dict, bool]:
+    """Check every key of one plan table: (screen options, other settings, all fine).
 
-
-def _first_key_in(message: str, keys: Iterable[str]) -> str | None:
-    found = [(message.find(k), k) for k in keys if re.search(rf"\b{re.escape(k)}\b", message)]
-    return min(found)[1] if found else None
+    The one check for ``[batch]``, ``[defaults]`` and each ``[[input]]``; the
+    keys each accepts and their kinds come from the option table.
+    """
+    options: dict = {}
+    settings: dict = {}
+    fine = True
+    for key, value in entry.items():
+        if key not in allowed:
+            elsewhere = [name for name, keys in _TABLE_KEYS.items() if key in keys and name != table]
+            hint = f" ('{key}' belongs in {_table_label(elsewhere[0]) if elsewhere[0] != 'input' else 'each [[input]]'}.)" if elsewhere else ""
+            errors.add(table, key, f"unknown key.{suggest(key, allowed)}{hint} Valid keys: {', '.join(sorted(allowed))}.")
+            fine = False
+            continue
+        try:
+            converted = _plan_value(key, value)
+        except OptionError as exc:
+            errors.add(table, key, exc.problem)
+            fine = False
+            continue
+        (options if OPTIONS[key].config == "screen" else settings)[key] = converted
+    return options, settings, fine
 
 
 def parse_plan(
@@ -249,7 +180,9 @@ def parse_plan(
 
     Every problem is collected and reported in one :class:`ConfigError`, each
     naming its place (file, line, table, key) and, for a wrong key or choice,
-    the valid ones.
+    the valid ones. The keys and their checks come from the option table
+    (:data:`pointsift.config.OPTIONS`): the same checks as on the command line
+    and in Python, with options named as the plan writes them.
 
     Parameters
     ----------
@@ -271,69 +204,29 @@ def parse_plan(
     -------
     BatchPlan
     """
-    base = Path(base_dir)
-    errors = _PlanErrors(source, KeyLocator(text) if text is not None else None)
-    option_names = ScreenConfig.option_names()
-    option_kinds = _option_types()
+    with caller("plan"):
+        return _parse_plan(data, Path(base_dir), source, text, out_dir, jobs)
 
+
+def _parse_plan(data, base: Path, source, text, out_dir, jobs) -> BatchPlan:
+    """The body of :func:`parse_plan`; one pass over the tables, collecting every problem."""
+    errors = _PlanErrors(source, KeyLocator(text) if text is not None else None)
     for key in data:
         if key not in _TOP_KEYS:
             errors.add("", key, f"unknown table or key '{key}'.{suggest(key, _TOP_KEYS)} "
                        f"Valid: {', '.join(_TOP_KEYS)}.")
+    tables = {}
+    for name in ("batch", "defaults"):
+        table = data.get(name, {})
+        if not isinstance(table, dict):
+            errors.add("", name, f"must be a table: write [{name}] on its own line.")
+            table = {}
+        tables[name] = table
+    _, batch_settings, _ = _read_table(errors, "batch", tables["batch"], _TABLE_KEYS["batch"])
+    default_options, default_settings, defaults_fine = _read_table(errors, "defaults", tables["defaults"],
+                                                                   _TABLE_KEYS["defaults"])
+    default_settings = {"report": batch_settings.get("report", False), **default_settings}
 
-    # [batch]
-    batch = data.get("batch", {})
-    plan_out_dir = plan_jobs = None
-    if not isinstance(batch, dict):
-        errors.add("", "batch", "must be a table: write [batch] on its own line.")
-        batch = {}
-    for key, value in batch.items():
-        if key not in _BATCH_KEYS:
-            errors.add("batch", key, f"unknown key.{suggest(key, _BATCH_KEYS)} Valid keys: {', '.join(_BATCH_KEYS)}.")
-        elif key == "out_dir":
-            if isinstance(value, str) and value:
-                plan_out_dir = value
-            else:
-                errors.add("batch", key, f"expects a directory name, got {value!r}.")
-        elif key == "jobs":
-            if isinstance(value, int) and not isinstance(value, bool) and value >= 1:
-                plan_jobs = value
-            else:
-                errors.add("batch", key, f"expects a whole number of worker processes, 1 or more, got {value!r}.")
-        elif key == "report" and not isinstance(value, bool):
-            errors.add("batch", key, f"expects true or false, got {value!r}.")
-    batch_report = batch.get("report", False) is True
-
-    # [defaults]
-    defaults = data.get("defaults", {})
-    if not isinstance(defaults, dict):
-        errors.add("", "defaults", "must be a table: write [defaults] on its own line.")
-        defaults = {}
-    default_options: dict = {}
-    defaults_bad = False
-    default_inputs: dict = {"report": batch_report}
-    valid_default_keys = sorted(option_names) + sorted(_DEFAULTABLE_INPUT_KEYS)
-    for key, value in defaults.items():
-        if key in option_names:
-            converted, problem = _check_option(key, value, option_kinds[key])
-            problem = problem or _check_option_alone(key, converted)
-            if problem:
-                errors.add("defaults", key, problem)
-                defaults_bad = True
-            else:
-                default_options[key] = converted
-        elif key in _DEFAULTABLE_INPUT_KEYS:
-            converted, problem = _check_input_key(key, value)
-            if problem:
-                errors.add("defaults", key, problem)
-            else:
-                default_inputs[key] = converted
-        else:
-            hint = " ('path' and 'name' belong in each [[input]].)" if key in ("path", "name") else ""
-            errors.add("defaults", key, f"unknown key.{suggest(key, valid_default_keys)}{hint} "
-                       f"Valid keys: {', '.join(valid_default_keys)}.")
-
-    # [[input]]
     entries = data.get("input", [])
     if isinstance(entries, dict):
         entries = [entries]
@@ -342,89 +235,18 @@ def parse_plan(
         errors.add("", None, "the plan lists no inputs: add at least one [[input]] table with a path, "
                    'e.g. an [[input]] line followed by path = "data/*.gpkg".')
         entries = []
-    valid_input_keys = sorted(option_names) + sorted(_INPUT_KEYS)
     specs = []
     for number, entry in enumerate(entries):
-        table = ("input", number)
-        if not isinstance(entry, dict):
-            errors.add(table, None, f"expects a table with at least a path, got {entry!r}.")
-            continue
-        options = dict(default_options)
-        settings = dict(default_inputs)
-        entry_ok = True
-        for key, value in entry.items():
-            if key in option_names:
-                converted, problem = _check_option(key, value, option_kinds[key])
-                problem = problem or _check_option_alone(key, converted)
-                if problem:
-                    errors.add(table, key, problem)
-                    entry_ok = False
-                else:
-                    options[key] = converted
-            elif key in _INPUT_KEYS:
-                converted, problem = _check_input_key(key, value)
-                if problem:
-                    errors.add(table, key, problem)
-                    entry_ok = False
-                else:
-                    settings[key] = converted
-            else:
-                errors.add(table, key, f"unknown key.{suggest(key, valid_input_keys)} "
-                           f"Valid keys: {', '.join(valid_input_keys)}.")
-                entry_ok = False
-        if "path" not in entry:
-            errors.add(table, None, 'has no path: add path = "file.gpkg" (a file, glob or directory).')
-            entry_ok = False
-        elif "path" in settings:
-            problem = _check_paths(settings["path"], base)
-            if problem:
-                errors.add(table, "path", problem)
-                entry_ok = False
-        if (settings.get("x") is None) != (settings.get("y") is None):
-            errors.add(table, "x" if "x" in entry else "y", "x and y name the coordinate columns together: set both.")
-            entry_ok = False
-        if "value" not in options and "value" not in defaults:
-            errors.add(table, None, "no value column: set value = \"<column>\" in [defaults] or in this [[input]].")
-            entry_ok = False
-        if not entry_ok or defaults_bad:
-            continue
-        if options.get("within") is not None and "graph" not in options:
-            options["graph"] = "band"  # as on the command line: a band width means a distance band
-        try:
-            config = ScreenConfig(**options)
-        except ConfigError as exc:
-            key = _first_key_in(str(exc), [k for k in entry if k in option_names])
-            if key is None:
-                key_default = _first_key_in(str(exc), [k for k in defaults if k in option_names])
-                if key_default is not None:
-                    message = f"{errors.place('defaults', key_default)}: {exc}"
-                    if message not in errors.messages:
-                        errors.messages.append(message)
-                    continue
-            errors.add(table, key, str(exc))
-            continue
-        paths = settings["path"]
-        line = errors.locator.line_of(table, None) if errors.locator else None
-        where = f"{source}{f' line {line}' if line else ''}, [[input]] #{number + 1}"
-        specs.append(
-            InputSpec(
-                paths=paths,
-                config=config,
-                layers=settings.get("layers"),
-                by=settings.get("by"),
-                x=settings.get("x"),
-                y=settings.get("y"),
-                name=settings.get("name"),
-                report=bool(settings.get("report", False)),
-                where=where,
-                base_dir=base,
-            )
-        )
+        spec = _input_spec(errors, ("input", number), entry, default_options, default_settings, tables["defaults"],
+                           defaults_fine, base, source)
+        if spec is not None:
+            specs.append(spec)
 
-    chosen_out = out_dir if out_dir is not None else plan_out_dir
+    chosen_out = out_dir if out_dir is not None else batch_settings.get("out_dir")
     if chosen_out is None:
-        errors.add("batch", "out_dir", 'no output directory: set out_dir = "screened" in [batch] or pass --out-dir.')
-    chosen_jobs = jobs if jobs is not None else (plan_jobs or 1)
+        errors.add("batch", "out_dir", f"no output directory: set out_dir = \"screened\" in [batch] or pass "
+                   f"{'--out-dir' if source == 'command line' else 'out_dir'}.")
+    chosen_jobs = jobs if jobs is not None else batch_settings.get("jobs", 1)
     if not (isinstance(chosen_jobs, int) and chosen_jobs >= 1):
         errors.add("batch", "jobs", f"expects a whole number of worker processes, 1 or more, got {chosen_jobs!r}.")
     errors.raise_if_any()
@@ -434,6 +256,57 @@ def parse_plan(
     if out_path.exists() and not out_path.is_dir():
         raise ConfigError(f"Output directory {str(out_path)!r} is a file. Choose a directory for out_dir.")
     return BatchPlan(inputs=tuple(specs), out_dir=out_path, jobs=chosen_jobs, source=source)
+
+
+def _input_spec(errors, table, entry, default_options, default_settings, defaults, defaults_fine, base, source):
+    """One ``[[input]]`` entry as an :class:`InputSpec`, or None (its problems recorded)."""
+    if not isinstance(entry, dict):
+        errors.add(table, None, f"expects a table with at least a path, got {entry!r}.")
+        return None
+    own_options, own_settings, fine = _read_table(errors, table, entry, _TABLE_KEYS["input"])
+    options = {**default_options, **own_options}
+    settings = {**default_settings, **own_settings}
+    if "path" not in entry:
+        errors.add(table, None, 'has no path: add path = "file.gpkg" (a file, glob or directory).')
+        fine = False
+    elif "path" in settings:
+        problem = _check_paths(settings["path"], base)
+        if problem:
+            errors.add(table, "path", problem)
+            fine = False
+    if (settings.get("x") is None) != (settings.get("y") is None):
+        errors.add(table, "x" if "x" in entry else "y", "x and y name the coordinate columns together: set both.")
+        fine = False
+    if "value" not in options and "value" not in defaults:
+        errors.add(table, None, "no value column: set value = \"<column>\" in [defaults] or in this [[input]].")
+        fine = False
+    if not fine or not defaults_fine:
+        return None
+    try:
+        config = ScreenConfig(**options)
+    except OptionError as exc:
+        names = exc.names or (exc.option,)
+        own = [name for name in names if name in entry]
+        if not own and any(name in defaults for name in names):
+            message = f"{errors.place('defaults', next(n for n in names if n in defaults))}: {exc.problem}"
+            if message not in errors.messages:  # one wrong default, reported once for all entries
+                errors.messages.append(message)
+            return None
+        errors.add(table, own[0] if own else None, exc.problem)
+        return None
+    line = errors.locator.line_of(table, None) if errors.locator else None
+    return InputSpec(
+        paths=settings["path"],
+        config=config,
+        layers=settings.get("layers"),
+        by=settings.get("by"),
+        x=settings.get("x"),
+        y=settings.get("y"),
+        name=settings.get("name"),
+        report=bool(settings.get("report", False)),
+        where=f"{source}{f' line {line}' if line else ''}, [[input]] #{table[1] + 1}",
+        base_dir=base,
+    )
 
 
 def _check_paths(paths: Sequence[str], base: Path) -> str | None:
@@ -516,7 +389,8 @@ def plan_from_args(
     inputs: Sequence[str],
     *,
     out_dir: str | os.PathLike,
-    options: dict,
+    config: ScreenConfig | None = None,
+    options: dict | None = None,
     layers: Sequence[str] | None = None,
     by: str | None = None,
     x: str | None = None,
@@ -524,7 +398,7 @@ def plan_from_args(
     report: bool = False,
     jobs: int = 1,
 ) -> BatchPlan:
-    """Build a plan from command-line arguments (the direct form of ``pointsift batch``).
+    """Build a plan from arguments (the direct form of ``pointsift batch``, or Python).
 
     Parameters
     ----------
@@ -532,19 +406,40 @@ def plan_from_args(
         Files, globs or directories.
     out_dir : path
         Output directory.
-    options : dict
-        Screen options (at least ``value``), as :class:`ScreenConfig` keywords.
+    config : ScreenConfig, optional
+        The screen options, as built by the command line.
+    options : dict, optional
+        Or the screen options as :class:`ScreenConfig` keywords (at least ``value``).
     layers, by, x, y, report, jobs
         As in an ``[[input]]`` table of a plan.
 
     Returns
     -------
     BatchPlan
+
+    Raises
+    ------
+    ConfigError
+        An input that does not exist, x without y, an invalid option.
     """
-    entry: dict = {"path": list(inputs)}
-    for key, value in (("layers", list(layers) if layers else None), ("by", by), ("x", x), ("y", y)):
-        if value is not None:
-            entry[key] = value
-    defaults = {k: (list(v) if isinstance(v, tuple) else v) for k, v in options.items() if v is not None}
-    data = {"batch": {"report": bool(report)}, "defaults": defaults, "input": [entry]}
-    return parse_plan(data, base_dir=Path.cwd(), source="command line", out_dir=out_dir, jobs=jobs)
+    if (config is None) == (options is None):
+        raise ConfigError("Give the screen options once: config=ScreenConfig(...) or options={...}.")
+    if config is None:
+        config = ScreenConfig(**options)
+    paths = tuple(str(p) for p in inputs)
+    if not paths:
+        raise ConfigError("Give input files, globs or folders (or a PLAN.toml).")
+    base = Path.cwd()
+    problem = _check_paths(paths, base)
+    if problem:
+        raise ConfigError(f"Input {problem}")
+    if (x is None) != (y is None):
+        raise ConfigError(f"Name the coordinate columns together: {spell('x', 'COLUMN')} and {spell('y', 'COLUMN')}.")
+    if not (isinstance(jobs, int) and not isinstance(jobs, bool) and jobs >= 1):
+        raise ConfigError(f"{spell('jobs')} must be a whole number of worker processes, 1 or more, got {jobs!r}.")
+    out_path = Path(out_dir)
+    if out_path.exists() and not out_path.is_dir():
+        raise ConfigError(f"Output directory {str(out_path)!r} is a file. Choose a directory for {spell('out_dir')}.")
+    spec = InputSpec(paths=paths, config=config, layers=tuple(layers) if layers else None, by=by, x=x, y=y,
+                     report=bool(report), where="command line", base_dir=base, words=current_caller())
+    return BatchPlan(inputs=(spec,), out_dir=out_path, jobs=jobs, source="command line")

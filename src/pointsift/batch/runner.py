@@ -16,6 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .._version import __version__
+from ..config import caller
 from ..errors import ConfigError, InputError, OutputError
 from ..io import file_sha256
 from ..vocabulary import STATUSES
@@ -93,18 +94,19 @@ def _screen_unit(task: _Task) -> UnitOutcome:
     staged_out = task.staging / task.out_path.name
     staged_report = task.staging / task.report_path.name if task.report_path else None
     try:
-        run = screen_file(
-            unit.path,
-            staged_out,
-            unit.config,
-            layer=unit.layer,
-            x=unit.x,
-            y=unit.y,
-            overwrite=True,
-            frame_filter=_group_filter(unit.by, unit.group) if unit.by else None,
-            source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
-            report_path=staged_report,
-        )
+        with caller(unit.words):  # messages about this unit in the words of whoever set it up
+            run = screen_file(
+                unit.path,
+                staged_out,
+                unit.config,
+                layer=unit.layer,
+                x=unit.x,
+                y=unit.y,
+                overwrite=True,
+                frame_filter=_group_filter(unit.by, unit.group) if unit.by else None,
+                source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
+                report_path=staged_report,
+            )
         screened = run.result.frame
         prepared = getattr(run.result, "prepared", None)
         crs = getattr(prepared, "input_crs", None) or screened.crs
@@ -112,11 +114,15 @@ def _screen_unit(task: _Task) -> UnitOutcome:
         counts = run.counts
         screen_seconds = run.seconds
         os.replace(staged_out, task.out_path)
+        note = ""
         if staged_report is not None:
             os.replace(staged_report, task.report_path)
+        elif _remove_stale_report(task.out_path):
+            note = "removed the report of an earlier run (this run writes none, so it no longer matched the output)"
         outcome = UnitOutcome(
             unit=unit,
             outcome=DONE,
+            message=note,
             counts={s: int(counts.get(s, 0)) for s in STATUSES},
             points=int(len(screened)),
             screen_seconds=screen_seconds,
@@ -139,6 +145,20 @@ def _screen_unit(task: _Task) -> UnitOutcome:
         )
     outcome.seconds = time.perf_counter() - started
     return outcome
+
+
+def _remove_stale_report(out_path: Path) -> bool:
+    """Remove ``<unit>.html`` beside a refreshed output when this run writes no report.
+
+    An earlier run with reports left it; beside the new output it would show
+    numbers the output no longer has. Returns True when a file was removed.
+    """
+    stale = out_path.with_suffix(".html")
+    try:
+        stale.unlink()
+    except FileNotFoundError:
+        return False
+    return True
 
 
 def _worker_init() -> None:

@@ -10,7 +10,7 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..config import ScreenConfig
+from ..config import ScreenConfig, caller
 from ..errors import PointsiftError
 from ..io import list_layers, read_points
 from .index import INDEX_STEM
@@ -52,6 +52,8 @@ class Unit:
         missing layer or column); it is then recorded as failed.
     origin : str
         The plan entry it came from (e.g. ``"plan.toml line 12, [[input]] #2"``).
+    words : str
+        Whose words messages use (``"plan"``, ``"cli"``, ``"python"``).
     """
 
     name: str
@@ -66,6 +68,7 @@ class Unit:
     report: bool = False
     problem: str | None = None
     origin: str = ""
+    words: str = "plan"
 
 
 _UNSAFE = re.compile(r"[^A-Za-z0-9._\-]+")
@@ -153,62 +156,8 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
     """
     drafts: list[tuple[tuple[str, ...], dict]] = []  # (name parts, unit fields)
     for spec in plan.inputs:
-        files = _resolve_paths(spec, plan.out_dir)
-        for path in files:
-            base_fields = dict(
-                path=path, display=_display(path), config=spec.config, by=spec.by, x=spec.x, y=spec.y,
-                report=spec.report, origin=spec.where,
-            )
-            layers: list[str | None] = [None]
-            layer_in_name = False
-            if path.suffix.lower() == ".gpkg":
-                try:
-                    available = list_layers(path)
-                except Exception as exc:  # corrupt or unreadable file: recorded, batch continues
-                    drafts.append(((spec.name or path.stem,), dict(base_fields, problem=describe_failure(exc, path))))
-                    continue
-                if spec.layers is None:
-                    layers = list(available)
-                    layer_in_name = len(available) > 1
-                else:
-                    layers = list(spec.layers)
-                    layer_in_name = True
-                if not layers:
-                    drafts.append(((spec.name or path.stem,), dict(
-                        base_fields, problem=f"{path.name} holds no layers; there is nothing to screen.")))
-                    continue
-                missing = [name for name in layers if name not in available]
-                for name in missing:
-                    drafts.append(((spec.name or path.stem, name), dict(
-                        base_fields, layer=name,
-                        problem=f"layer {name!r} is not in {path.name}; its layers are: "
-                                f"{', '.join(available) or '(none)'}.{suggest(name, available)}")))
-                layers = [name for name in layers if name not in missing]
-            for layer in layers:
-                stem = (spec.name or path.stem,) + ((layer,) if layer_in_name and layer else ())
-                fields = dict(base_fields, layer=layer)
-                if spec.by is None:
-                    drafts.append((stem, fields))
-                    continue
-                try:
-                    frame, _ = read_points(path, layer=layer, x=spec.x, y=spec.y, crs=spec.config.crs)
-                except Exception as exc:
-                    drafts.append((stem, dict(fields, problem=describe_failure(exc, path))))
-                    continue
-                if spec.by not in frame.columns:
-                    columns = [c for c in frame.columns if c != frame.geometry.name]
-                    drafts.append((stem, dict(fields, problem=(
-                        f"grouping column {spec.by!r} is not in {path.name}"
-                        f"{f' layer {layer!r}' if layer else ''}; its columns are: {', '.join(map(str, columns))}."
-                        f"{suggest(spec.by, map(str, columns))}"))))
-                    continue
-                labels = group_labels(frame[spec.by])
-                present = sorted({label for label in labels if label is not None})
-                if any(label is None for label in labels):
-                    present.append(None)
-                for label in present:
-                    part = f"{spec.by}-{label if label is not None else 'missing'}"
-                    drafts.append((stem + (part,), dict(fields, group=label)))
+        with caller(spec.words):  # messages about this entry in its own words
+            drafts.extend(_spec_drafts(spec, plan.out_dir))
     unique_drafts, identities = [], set()
     for parts, fields in drafts:
         identity = _identity(fields)
@@ -218,6 +167,68 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
     drafts = unique_drafts
     names = _unique_names(drafts)
     return [Unit(name=name, **fields) for name, (_, fields) in zip(names, drafts)]
+
+
+def _spec_drafts(spec: InputSpec, out_dir: Path) -> list[tuple[tuple[str, ...], dict]]:
+    """(name parts, unit fields) of every unit of one plan entry; problems become fields, never exceptions."""
+    drafts: list[tuple[tuple[str, ...], dict]] = []
+    files = _resolve_paths(spec, out_dir)
+    for path in files:
+        base_fields = dict(
+            path=path, display=_display(path), config=spec.config, by=spec.by, x=spec.x, y=spec.y,
+            report=spec.report, origin=spec.where, words=spec.words,
+        )
+        layers: list[str | None] = [None]
+        layer_in_name = False
+        if path.suffix.lower() == ".gpkg":
+            try:
+                available = list_layers(path)
+            except Exception as exc:  # corrupt or unreadable file: recorded, batch continues
+                drafts.append(((spec.name or path.stem,), dict(base_fields, problem=describe_failure(exc, path))))
+                continue
+            if spec.layers is None:
+                layers = list(available)
+                layer_in_name = len(available) > 1
+            else:
+                layers = list(spec.layers)
+                layer_in_name = True
+            if not layers:
+                drafts.append(((spec.name or path.stem,), dict(
+                    base_fields, problem=f"{path.name} holds no layers; there is nothing to screen.")))
+                continue
+            missing = [name for name in layers if name not in available]
+            for name in missing:
+                drafts.append(((spec.name or path.stem, name), dict(
+                    base_fields, layer=name,
+                    problem=f"layer {name!r} is not in {path.name}; its layers are: "
+                            f"{', '.join(available) or '(none)'}.{suggest(name, available)}")))
+            layers = [name for name in layers if name not in missing]
+        for layer in layers:
+            stem = (spec.name or path.stem,) + ((layer,) if layer_in_name and layer else ())
+            fields = dict(base_fields, layer=layer)
+            if spec.by is None:
+                drafts.append((stem, fields))
+                continue
+            try:
+                frame, _ = read_points(path, layer=layer, x=spec.x, y=spec.y, crs=spec.config.crs)
+            except Exception as exc:
+                drafts.append((stem, dict(fields, problem=describe_failure(exc, path))))
+                continue
+            if spec.by not in frame.columns:
+                columns = [c for c in frame.columns if c != frame.geometry.name]
+                drafts.append((stem, dict(fields, problem=(
+                    f"grouping column {spec.by!r} is not in {path.name}"
+                    f"{f' layer {layer!r}' if layer else ''}; its columns are: {', '.join(map(str, columns))}."
+                    f"{suggest(spec.by, map(str, columns))}"))))
+                continue
+            labels = group_labels(frame[spec.by])
+            present = sorted({label for label in labels if label is not None})
+            if any(label is None for label in labels):
+                present.append(None)
+            for label in present:
+                part = f"{spec.by}-{label if label is not None else 'missing'}"
+                drafts.append((stem + (part,), dict(fields, group=label)))
+    return drafts
 
 
 def _identity(fields: dict) -> str:
@@ -253,18 +264,11 @@ def _unique_names(drafts: list[tuple[tuple[str, ...], dict]]) -> list[str]:
     return names
 
 
-_FLAG_TO_KEY = {"neighbours": "k", "no-data": "sentinels", "layer": "layers", "duplicate-tolerance":
-                "coincident_value_tolerance"}
-
-
 def with_origin(message: str, unit: Unit) -> str:
-    """Point a data problem at the plan entry to fix; name plan keys for the flags a message mentions."""
-    if not unit.origin or unit.origin.startswith("command line"):
+    """Point a data problem at the plan entry to fix (the message already names options as the plan does)."""
+    if unit.words != "plan" or not unit.origin:
         return message
-    flags = sorted(set(re.findall(r"--([a-z][a-z\-]*)", message)))
-    keys = [f"--{flag} is {_FLAG_TO_KEY.get(flag, flag.replace('-', '_'))} = ..." for flag in flags]
-    hint = f"; in the plan, {', '.join(keys)}" if keys else ""
-    return f"{message} (plan entry: {unit.origin}{hint})"
+    return f"{message} (plan entry: {unit.origin})"
 
 
 def describe_failure(exc: BaseException, path: Path) -> str:

@@ -16,13 +16,14 @@ import traceback
 import click
 
 from .._version import __version__
+from ..config import caller
 from ..errors import ConfigError, PointsiftError
 from .batch import batch
 from .describe import describe
-from .options import config_from_options, screen_options
+from .options import config_from_options, screen_options, table_options
 from .screen import screen
 
-__all__ = ["main", "cli", "screen_options", "config_from_options", "EXIT_OK", "EXIT_DATA", "EXIT_USAGE",
+__all__ = ["main", "cli", "screen_options", "table_options", "config_from_options", "EXIT_OK", "EXIT_DATA", "EXIT_USAGE",
            "EXIT_SOME_FAILED", "EXIT_INTERRUPTED"]
 
 EXIT_OK = 0
@@ -54,6 +55,8 @@ def cli(ctx, verbose, quiet):
     follow local regulations and licensed professional practice.
     """
     ctx.ensure_object(dict)
+    # every message of this run names options as the command line writes them (--crs)
+    ctx.with_resource(caller("cli"))
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet
     _setup_logging(verbose, quiet)

@@ -11,7 +11,7 @@ import click
 from ..errors import ConfigError
 from ..record import run_record
 from ..vocabulary import SUSPECT, direction_words
-from .options import LENGTH, config_from_options, screen_options
+from .options import config_from_options, describe_config_from_options, pop_table_values, table_options
 from .screen import check_report_paths
 
 __all__ = ["describe"]
@@ -19,16 +19,6 @@ __all__ = ["describe"]
 
 def _number(value) -> str:
     return "n/a" if value is None or not math.isfinite(value) else f"{value:.4g}"
-
-
-def _parse_directions(ctx, param, value):
-    try:
-        directions = tuple(float(part) for part in str(value).split(",") if part.strip())
-    except ValueError:
-        raise click.BadParameter(f"{value!r} is not a comma-separated list of azimuths in degrees, e.g. '90,0'.")
-    if not directions:
-        raise click.BadParameter("give at least one azimuth, e.g. '90' for west-east strips.")
-    return directions
 
 
 def _echo_description(description, value_column: str, where: str) -> None:
@@ -99,27 +89,23 @@ def _echo_description(description, value_column: str, where: str) -> None:
 
 @click.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
-@screen_options
+@table_options("describe")
 @click.option("--out", "out_path", default=None, type=click.Path(dir_okay=False), help="Also write the strips layer and summary tables to this GeoPackage (.gpkg).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-@click.option("--strips", "directions", default="90,0", callback=_parse_directions, help="Strip directions: azimuths in degrees along which strips run, comma-separated; 90 west-east, 0 south-north (default 90,0).")
-@click.option("--strip-width", type=LENGTH, default=None, help="Strip width, e.g. 500m (default: from the point density).")
-@click.option("--min-strip-points", type=click.IntRange(5, None), default=5, help="Smaller strips are too small to judge (default 5).")
-@click.option("--stem-unit", type=click.FloatRange(min=0, min_open=True), default=None, help="Stem unit of the stem-and-leaf display, a power of ten (default: chosen).")
-@click.option("--stem-split", type=click.Choice(["1", "2", "5"]), default=None, help="Lines per stem (default: chosen).")
-@click.option("--bin-width", type=click.FloatRange(min=0, min_open=True), default=None, help="Histogram bin width (default: Freedman-Diaconis).")
 @click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png, strips.png and the variogram figures into.")
-@click.option("--with-screen", is_flag=True, help="Screen first, and also summarise without the suspect rows.")
+@click.option("--with-screen", is_flag=True, help="Screen first (with the screen's default options), and also summarise without the suspect rows.")
 @click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
 @click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
 @click.pass_context
-def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, directions, strip_width,
-             min_strip_points, stem_unit, stem_split, bin_width, figures_dir, with_screen, report_path=None,
+def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, report_path=None,
              summary_json_path=None, **options):
     """Describe INPUT: summary figures, stem-and-leaf display, strip statistics
     across the area and the regional trend. Reads INPUT exactly as 'screen' does."""
     from ..explore import describe as describe_prepared
 
+    where = pop_table_values(options, None)
+    layer, x_column, y_column = where["layer"], where["x"], where["y"]
+    settings = describe_config_from_options(options)
     config = config_from_options(options)
     check_report_paths(report_path, summary_json_path, overwrite)
     if figures_dir is not None and not Path(figures_dir).is_dir():
@@ -127,17 +113,17 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
     result, prepared, source, suspects, where = _read(input_path, layer, x_column, y_column, config, with_screen)
     description = describe_prepared(
         prepared,
-        directions=directions,
-        strip_width=strip_width,
-        min_strip_n=min_strip_points,
+        directions=settings.directions,
+        strip_width=settings.strip_width,
+        min_strip_n=settings.min_strip_points,
         trend=config.detrend,
         lag_count=config.lag_count,
         lag_width=config.lag_width,
-        stem_unit=stem_unit,
-        split=int(stem_split) if stem_split else None,
+        stem_unit=settings.stem_unit,
+        split=settings.stem_split,
         suspect_mask=suspects,
         figures=figures_dir is not None,
-        bin_width=bin_width,
+        bin_width=settings.bin_width,
         value_label=config.value,
         seed=config.seed,
         screen=result,
@@ -153,6 +139,7 @@ def describe(ctx, input_path, out_path, overwrite, layer, x_column, y_column, di
         prepared=prepared,
         source=source,
         output_path=out_path,
+        describe=settings.as_record(),
         strip_widths_m={f"{d:g}": w for d, w in description.strips.widths.items()},
         trend=description.trend_info,
         variogram=(

@@ -8,7 +8,7 @@ import click
 
 from ..errors import ConfigError
 from ..vocabulary import FLAGGED, REVIEW, SUSPECT, UNSCREENED
-from .options import config_from_options, screen_options
+from .options import config_from_options, pop_table_values, table_options
 
 __all__ = ["screen", "check_report_paths"]
 
@@ -45,20 +45,21 @@ def _echo_result(result, top: int = 10) -> None:
 
 @click.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
-@screen_options
+@table_options("screen")
 @click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), help="Output GeoPackage (.gpkg).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 @click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
 @click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
 @click.pass_context
-def screen(ctx, input_path, out_path, overwrite, layer, x_column, y_column, report_path=None, summary_json_path=None, **options):
+def screen(ctx, input_path, out_path, overwrite, report_path=None, summary_json_path=None, **options):
     """Screen INPUT (GeoPackage, shapefile, CSV or GeoParquet) and write OUTPUT.gpkg
     with every input row plus screen_status, screen_score and screen_reasons."""
     from ..run import screen_file
 
+    where = pop_table_values(options, None)
     config = config_from_options(options)
     check_report_paths(report_path, summary_json_path, overwrite)
-    run = screen_file(input_path, out_path, config, layer=layer, x=x_column, y=y_column, overwrite=overwrite,
+    run = screen_file(input_path, out_path, config, layer=where["layer"], x=where["x"], y=where["y"], overwrite=overwrite,
                       report_path=report_path, summary_json_path=summary_json_path)
     if not ctx.obj.get("quiet"):
         _echo_result(run.result)

@@ -379,7 +379,7 @@ def point_spacing(xy) -> float:
     return float(np.median(nearest))
 
 
-def lag_class_edges(first_lag: float, lag_count: int, lag_tolerance: float | None = None) -> np.ndarray:
+def lag_class_edges(first_lag: float, pair_lag_count: int, lag_tolerance: float | None = None) -> np.ndarray:
     """Lower and upper edges of the screening lag classes.
 
     Class ``k`` (1-based) has centre ``k * first_lag`` and holds separations
@@ -390,7 +390,7 @@ def lag_class_edges(first_lag: float, lag_count: int, lag_tolerance: float | Non
     ----------
     first_lag : float
         Lag spacing ``h`` (the centre of the first class).
-    lag_count : int
+    pair_lag_count : int
         Number of classes.
     lag_tolerance : float, optional
         Half-width ``t``; default ``h / 2`` (classes touch). It may not
@@ -398,7 +398,7 @@ def lag_class_edges(first_lag: float, lag_count: int, lag_tolerance: float | Non
 
     Returns
     -------
-    ndarray, shape (lag_count, 2)
+    ndarray, shape (pair_lag_count, 2)
         ``[low, high]`` per class.
 
     Examples
@@ -408,15 +408,15 @@ def lag_class_edges(first_lag: float, lag_count: int, lag_tolerance: float | Non
     """
     if not (first_lag > 0 and math.isfinite(first_lag)):
         raise ConfigError(f"first_lag must be a positive length, got {first_lag!r}.")
-    if not (isinstance(lag_count, (int, np.integer)) and 1 <= lag_count <= 1000):
-        raise ConfigError(f"lag_count must be a whole number from 1 to 1000, got {lag_count!r}.")
+    if not (isinstance(pair_lag_count, (int, np.integer)) and 1 <= pair_lag_count <= 1000):
+        raise ConfigError(f"pair_lag_count (the lag-pair screen's classes, not the variogram's lag_count) must be a whole number from 1 to 1000, got {pair_lag_count!r}.")
     t = first_lag / 2.0 if lag_tolerance is None else float(lag_tolerance)
     if not 0 < t <= first_lag / 2.0 * (1 + 1e-12):
         raise ConfigError(
             f"lag_tolerance {lag_tolerance!r} must be positive and at most half the lag ({first_lag / 2:g}); "
             "a wider tolerance would put one pair in two lag classes."
         )
-    centres = first_lag * np.arange(1, lag_count + 1)
+    centres = first_lag * np.arange(1, pair_lag_count + 1)
     edges = np.column_stack([centres - t, centres + t])
     edges[0, 0] = 0.0
     # Touching classes share one edge value exactly, so no separation falls
@@ -590,7 +590,7 @@ def screen_lag_pairs(
     *,
     ids=None,
     first_lag: float | None = None,
-    lag_count: int = 3,
+    pair_lag_count: int = 3,
     lag_tolerance: float | None = None,
     directions=DEFAULT_DIRECTIONS,
     angle_tolerance: float = 22.5,
@@ -637,7 +637,7 @@ def screen_lag_pairs(
     first_lag : float, optional
         Lag spacing ``h``; default the median nearest-neighbour spacing
         (:func:`point_spacing`).
-    lag_count : int
+    pair_lag_count : int
         Number of lag classes screened (default 3: h, 2h, 3h).
     lag_tolerance : float, optional
         Half-width of a lag class, at most ``h / 2`` (the default).
@@ -701,7 +701,7 @@ def screen_lag_pairs(
         first_lag = point_spacing(xy_use)
         if not math.isfinite(first_lag):
             first_lag = 1.0  # fewer than two distinct usable points: nothing to pair
-    edges = lag_class_edges(float(first_lag), lag_count, lag_tolerance)
+    edges = lag_class_edges(float(first_lag), pair_lag_count, lag_tolerance)
     pairs = find_pairs(xy_use, float(edges[-1, 1]), pair_budget=pair_budget, seed=seed)
 
     d = pairs.distance
