@@ -40,10 +40,11 @@ def test_batch_over_a_programme_with_bad_inputs(tmp_path, capsys):
     }
     assert "corrupt.gpkg" in index.loc["corrupt", "message"]
     assert "has no CRS" in index.loc["no_crs", "message"]
-    # the message points at the plan entry to fix, and says the flag it mentions is a plan key there
+    # the message points at the plan entry to fix, and names the option as the plan writes it
     entry_line = line_of(plan.read_text(), "[[input]]")
-    assert f"(plan entry: plan.toml line {entry_line}, [[input]] #1; in the plan, --crs is crs = ..." in index.loc[
-        "no_crs", "message"]
+    message = index.loc["no_crs", "message"]
+    assert 'Pass crs = "EPSG:XXXX"' in message and "--crs" not in message
+    assert message.endswith(f"(plan entry: plan.toml line {entry_line}, [[input]] #1)")
     assert "no column 'level_m'" in index.loc["no_value", "message"] and "head_m" in index.loc["no_value", "message"]
     assert "9 units: 6 done, 3 failed" in captured.err
     # each output read back with pyogrio: every input row is there, with a status word
