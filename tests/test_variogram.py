@@ -18,7 +18,6 @@ from pointsift.methods.variogram import (
     cressie_hawkins,
     empirical_variogram,
     expected_difference_sd,
-    expected_mean_difference_sd,
     fit_variogram,
     lag_edges,
     matheron,
@@ -287,17 +286,6 @@ def test_expected_difference_scales_follow_the_covariance():
     i, j = 0, 1
     assert expected_difference_sd(fit, d[i, j]) == pytest.approx(math.sqrt(cov[i, i] + cov[j, j] - 2 * cov[i, j]),
                                                                  rel=1e-6)
-    # a point minus the plain mean of its neighbours: w' C w with w = (1, -1/m, ..., -1/m)
-    order = np.argsort(d, axis=1)[:, 1:6]
-    indices = order.copy()
-    indices[2, 3:] = -1  # a short row, padded
-    got = expected_mean_difference_sd(fit, xy, indices)
-    for p in (0, 2, 7):
-        nb = indices[p][indices[p] >= 0]
-        w = np.zeros(len(xy))
-        w[p] = 1.0
-        w[nb] = -1.0 / len(nb)
-        assert got[p] == pytest.approx(math.sqrt(w @ cov @ w), rel=1e-6)
 
 
 def test_variogram_pair_budget_is_reported():

@@ -30,7 +30,10 @@ def test_quadrants_and_roles_are_distinct_words():
         (0, "strip", "south-north strip"),
         (90, "strips", "west-east strips, numbered south to north"),
         (22.5, "strip", "strip along 22.5\N{DEGREE SIGN}"),
-        (135, "strips", "strips along azimuth 135\N{DEGREE SIGN}, numbered towards 45\N{DEGREE SIGN}"),
+        (135, "strips", "south-east to north-west strips, numbered south-west to north-east"),
+        (30, "strips", "strips along azimuth 30\N{DEGREE SIGN}, numbered towards 120\N{DEGREE SIGN}"),
+        (270, "short", "west-east"),  # axial: 270 is the same line as 90
+        (45, "abbrev", "SW-NE"),
         (22.5, "label", "22.5"),
         (None, "label", "all"),
     ],
@@ -40,7 +43,7 @@ def test_direction_words(direction, form, text):
 
 
 def test_unknown_direction_form_lists_the_forms():
-    with pytest.raises(ValueError, match="short, strip, strips, label"):
+    with pytest.raises(ValueError, match="short, abbrev, strip, strips, label"):
         words.direction_words(90, "long")
 
 

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .vocabulary import FLAGGED, STATUSES
+from .vocabulary import FLAGGED, STATUSES, direction_words
 
 __all__ = ["Findings", "MapData", "FLAGGED", "FAR_FENCE", "plain", "flagged_rows", "far_fences",
            "screen_findings", "describe_findings", "distribution_findings"]
@@ -228,7 +228,6 @@ def _variogram_findings(structure) -> tuple[dict, dict]:
 
 
 def _lag_findings(structure, ids, seed: int) -> tuple[dict | None, list]:
-    from .methods.lagpairs import DIRECTION_NAMES, direction_label
 
     screen = structure.lag_screen
     if screen is None:
@@ -247,7 +246,7 @@ def _lag_findings(structure, ids, seed: int) -> tuple[dict | None, list]:
     rng = np.random.default_rng(seed)
     panels = []
     for j, d in enumerate(screen.directions):
-        label = direction_label(d)
+        label = direction_words(d, "label")
         lags = []
         for k, (low, high) in enumerate(screen.lag_edges):
             sel = np.flatnonzero(screen.direction_member[:, j] & (screen.lag_index == k))
@@ -262,7 +261,7 @@ def _lag_findings(structure, ids, seed: int) -> tuple[dict | None, list]:
                          "flagged": int(out.sum()), "drawn": int(inside.size),
                          "tail": tail_v[inside], "head": head_v[inside],
                          "tail_flagged": tail_v[sel[out]], "head_flagged": head_v[sel[out]], "band": band})
-        panels.append({"direction": label, "name": DIRECTION_NAMES.get(d, f"azimuth {label}"), "lags": lags,
+        panels.append({"direction": label, "name": direction_words(d, "abbrev"), "lags": lags,
                        "threshold": float(screen.threshold), "angle_tolerance": float(screen.angle_tolerance)})
     record["figures"] = [{"figure": f"lag_pairs_{p['direction']}", "direction": p["direction"], "name": p["name"]}
                          for p in panels]

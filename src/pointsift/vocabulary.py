@@ -59,35 +59,49 @@ ROLE_UNDECIDED = "undecided"
 COINCIDENT_ROLES: tuple[str, ...] = (ROLE_ALONE, ROLE_AGREES, ROLE_CONTRADICTED, ROLE_SUPPORTED, ROLE_UNDECIDED)
 
 
+_NAMED = {
+    90.0: ("west-east", "W-E", "south to north"),
+    0.0: ("south-north", "S-N", "west to east"),
+    45.0: ("south-west to north-east", "SW-NE", "south-east to north-west"),
+    135.0: ("south-east to north-west", "SE-NW", "south-west to north-east"),
+}
+
+
 def direction_words(direction: float | None, form: str = "short") -> str:
-    """Plain words for a direction (an azimuth in degrees, clockwise from grid north).
+    """Plain words for a direction (an azimuth in degrees, clockwise from grid north; axial, so 270 is 90).
+
+    The one place direction words are made (strips, lag pairs, variograms,
+    reports and the command line).
 
     Parameters
     ----------
     direction : float or None
         Azimuth in degrees; None means every direction.
-    form : {"short", "strip", "strips", "label"}
-        ``"short"``: ``"west-east"``; ``"strip"``: ``"west-east strip"``;
-        ``"strips"``: ``"west-east strips, numbered south to north"``;
-        ``"label"``: the bare azimuth (``"90"``, ``"22.5"``, ``"all"``), for tables.
+    form : {"short", "abbrev", "strip", "strips", "label"}
+        ``"short"``: ``"west-east"``; ``"abbrev"``: ``"W-E"``; ``"strip"``:
+        ``"west-east strip"``; ``"strips"``: ``"west-east strips, numbered
+        south to north"``; ``"label"``: the bare azimuth (``"90"``,
+        ``"22.5"``, ``"all"``), for tables and keys.
 
     Returns
     -------
     str
     """
+    if form not in ("short", "abbrev", "strip", "strips", "label"):
+        raise ValueError(f"form {form!r} is not known; choose one of short, abbrev, strip, strips, label.")
     if direction is None:
-        return "all" if form == "label" else "all directions"
-    direction = float(direction)
+        return "all" if form in ("label", "abbrev") else "all directions"
     if form == "label":
-        return f"{direction:g}"
-    named = {90.0: ("west-east", "south to north"), 0.0: ("south-north", "west to east")}
+        return f"{float(direction):g}"
+    axial = float(direction) % 180.0
+    named = _NAMED.get(axial)
     if form == "short":
-        return named[direction][0] if direction in named else f"azimuth {direction:g}\N{DEGREE SIGN}"
+        return named[0] if named else f"azimuth {axial:g}\N{DEGREE SIGN}"
+    if form == "abbrev":
+        return named[1] if named else f"azimuth {axial:g}"
     if form == "strip":
-        return f"{named[direction][0]} strip" if direction in named else f"strip along {direction:g}\N{DEGREE SIGN}"
-    if form == "strips":
-        if direction in named:
-            return f"{named[direction][0]} strips, numbered {named[direction][1]}"
-        return (f"strips along azimuth {direction:g}\N{DEGREE SIGN}, "
-                f"numbered towards {(direction - 90) % 180:g}\N{DEGREE SIGN}")
-    raise ValueError(f"form {form!r} is not known; choose one of short, strip, strips, label.")
+        return f"{named[0]} strip" if named else f"strip along {axial:g}\N{DEGREE SIGN}"
+    if named:
+        return f"{named[0]} strips, numbered {named[2]}"
+    return (f"strips along azimuth {axial:g}\N{DEGREE SIGN}, "
+            f"numbered towards {(axial - 90) % 180:g}\N{DEGREE SIGN}")

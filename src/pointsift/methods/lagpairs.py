@@ -42,17 +42,16 @@ import pandas as pd
 from scipy.spatial import cKDTree
 
 from ..errors import ConfigError, InputError
+from ..vocabulary import direction_words
 from .robust import NORMAL_Q75 as _NORMAL_Q75  # MAD / this and IQR / (2 * this) estimate a normal sd
 
 __all__ = [
     "DEFAULT_DIRECTIONS",
-    "DIRECTION_NAMES",
     "DEFAULT_PAIR_BUDGET",
     "PairSet",
     "LagPairScreen",
     "find_pairs",
     "axial_difference",
-    "direction_label",
     "point_spacing",
     "lag_class_edges",
     "screen_lag_pairs",
@@ -65,7 +64,6 @@ __all__ = [
 DEFAULT_DIRECTIONS: tuple[float, ...] = (90.0, 45.0, 0.0, 135.0)
 
 #: Plain names of the default directions.
-DIRECTION_NAMES: dict[float, str] = {90.0: "W-E", 45.0: "SW-NE", 0.0: "S-N", 135.0: "SE-NW"}
 
 #: Pairs kept by :func:`find_pairs` before seeded subsampling starts.
 DEFAULT_PAIR_BUDGET = 20_000_000
@@ -336,13 +334,6 @@ def axial_difference(azimuth, direction: float) -> np.ndarray:
     return np.abs(np.mod(azimuth - float(direction) + 90.0, 180.0) - 90.0)
 
 
-def direction_label(direction: float | None) -> str:
-    """Text label of a direction: ``'all'`` for None, else the azimuth, e.g. ``'90'`` or ``'22.5'``."""
-    if direction is None:
-        return "all"
-    return f"{float(direction):g}"
-
-
 def point_spacing(xy) -> float:
     """Typical spacing of the points: the median distance to the nearest distinct point.
 
@@ -503,7 +494,7 @@ class LagPairScreen:
         if sel.size:
             best = np.nanargmax(np.where(np.isfinite(abs_z[sel]), abs_z[sel], -1.0), axis=1)
             z = self.pair_z[sel, best]
-            dirs = np.array([direction_label(d) for d in self.directions], dtype=object)[best]
+            dirs = np.array([direction_words(d, "label") for d in self.directions], dtype=object)[best]
         else:
             z = np.empty(0)
             dirs = np.empty(0, dtype=object)
@@ -533,7 +524,7 @@ class LagPairScreen:
     def record(self) -> dict:
         """Plain-value summary for the run record."""
         return {
-            "directions": [direction_label(d) for d in self.directions],
+            "directions": [direction_words(d, "label") for d in self.directions],
             "angle_tolerance": float(self.angle_tolerance),
             "first_lag": float(self.first_lag),
             "lag_edges": self.lag_edges.tolist(),
@@ -748,7 +739,7 @@ def screen_lag_pairs(
                 at_median = float(np.median(pair_scale[sel]))  # the scale grows with separation
                 centre, scale = centre * at_median, scale * at_median
             rows.append({
-                "direction": direction_label(direction), "lag": k + 1, "lag_low": float(lo),
+                "direction": direction_words(direction, "label"), "lag": k + 1, "lag_low": float(lo),
                 "lag_high": float(hi), "pairs": int(sel.size), "median_separation": median_h,
                 "band_centre": centre, "band_scale": scale, "flagged": flagged_count, "screened": screened,
             })
@@ -947,7 +938,7 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
     if direction not in screen.directions:
         raise ConfigError(
             f"direction {direction:g} was not screened; choose one of "
-            f"{', '.join(direction_label(d) for d in screen.directions)}."
+            f"{', '.join(direction_words(d, 'label') for d in screen.directions)}."
         )
     j = screen.directions.index(direction)
     n_lags = screen.lag_edges.shape[0]
@@ -957,7 +948,7 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
     tail_v = screen.values[screen.pairs.tail]
     head_v = screen.values[screen.pairs.head]
     classes = screen.classes.set_index(["direction", "lag"])
-    name = DIRECTION_NAMES.get(direction, f"azimuth {direction:g}")
+    name = direction_words(direction, "abbrev")
     for k, ax in enumerate(axes):
         sel = np.flatnonzero(screen.direction_member[:, j] & (screen.lag_index == k))
         with np.errstate(invalid="ignore"):
@@ -994,7 +985,7 @@ def plot_lag_pairs(screen: LagPairScreen, direction: float, *, max_points: int =
                 note += f"\n{n_beyond} beyond the axes (triangles on the frame)"
             line = np.array([lo, hi])
             ax.plot(line, line, color="k", lw=0.8)
-            row = classes.loc[(direction_label(direction), k + 1)]
+            row = classes.loc[(direction_words(direction, "label"), k + 1)]
             if row["screened"]:
                 for sign in (-1, 1):
                     offset = row["band_centre"] + sign * screen.threshold * row["band_scale"]

@@ -75,6 +75,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ConfigError, InputError
+from ..vocabulary import direction_words
 from .summary import SIGMA_FROM_IQR
 
 __all__ = [
@@ -87,7 +88,6 @@ __all__ = [
     "build_null_table",
     "plot_strip_profiles",
     "flagged_strip_evidence",
-    "direction_words",
     "DEFAULT_DIRECTIONS",
     "MIN_STRIP_N",
     "FLAG_U",
@@ -612,14 +612,6 @@ def strip_summary(
     )
 
 
-def _family_name(direction: float) -> str:
-    if direction == 90.0:
-        return "west-east strip"
-    if direction == 0.0:
-        return "south-north strip"
-    return f"strip along {direction:g}\N{DEGREE SIGN}"
-
-
 def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
     """Evidence text for the points that are the extreme value of a flagged strip.
 
@@ -641,21 +633,12 @@ def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
     out = np.full(n_points, "", dtype=object)
     for row in result.flagged.itertuples(index=False):
         text = (
-            f"extreme value of {_family_name(float(row.direction))} {row.strip}, whose mean ({row.mean:.4g}) "
+            f"extreme value of {direction_words(float(row.direction), 'strip')} {row.strip}, whose mean ({row.mean:.4g}) "
             f"is far from its median ({row.median:.4g}; u = {row.u:+.2f}, n = {row.n})"
         )
         position = int(row.extreme_row)
         out[position] = f"{out[position]}; {text}" if out[position] else text
     return out.astype(str)
-
-
-def direction_words(direction: float) -> str:
-    """Plain words for a strip family, e.g. ``"west-east strips, numbered south to north"``."""
-    if direction == 90.0:
-        return "west-east strips, numbered south to north"
-    if direction == 0.0:
-        return "south-north strips, numbered west to east"
-    return f"strips along azimuth {direction:g}\N{DEGREE SIGN}, numbered towards {(direction - 90) % 180:g}\N{DEGREE SIGN}"
 
 
 def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value", flag_u: float = FLAG_U):
@@ -699,7 +682,7 @@ def plot_strip_profiles(table: pd.DataFrame, *, label: str = "value", flag_u: fl
         if flagged.any():
             ax.scatter(pos[flagged], part["mean"][flagged], facecolor="none", edgecolor="#c0392b", s=90, lw=1.5,
                        zorder=4, label=f"|u| > {flag_u:g}")
-        ax.set_title(f"{direction_words(float(direction))} (width {float(part['width'].iloc[0]):g} m)", fontsize=10)
+        ax.set_title(f"{direction_words(float(direction), 'strips')} (width {float(part['width'].iloc[0]):g} m)", fontsize=10)
         ax.set_xlabel("across position of strip centre (km from first strip edge)")
         ax.set_ylabel(label)
         ax.legend(fontsize=8, loc="best")

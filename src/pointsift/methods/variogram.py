@@ -48,13 +48,12 @@ import pandas as pd
 from scipy.optimize import least_squares
 
 from ..errors import ConfigError, InputError
+from ..vocabulary import direction_words
 from .lagpairs import (
     DEFAULT_DIRECTIONS,
-    DIRECTION_NAMES,
     PairSet,
     _as_xy,
     axial_difference,
-    direction_label,
     find_pairs,
     point_spacing,
 )
@@ -82,7 +81,6 @@ __all__ = [
     "variogram_table",
     "neighbourhood_from_fit",
     "expected_difference_sd",
-    "expected_mean_difference_sd",
     "plot_variogram_cloud",
     "plot_sqrt_difference_cloud",
     "plot_variogram",
@@ -339,7 +337,7 @@ def empirical_variogram(
         counts, mean_d, g_m, g_ch = _class_estimates(c, pairs.distance, squared, root, n_classes)
         for name, gamma in zip(ESTIMATORS, (g_m, g_ch)):
             frames.append(pd.DataFrame({
-                "direction": direction_label(direction),
+                "direction": direction_words(direction, "label"),
                 "estimator": name,
                 "lag_low": edges[:-1],
                 "lag_high": edges[1:],
@@ -737,7 +735,7 @@ class VariogramAnalysis:
         hint = neighbourhood_from_fit(self.fit)
         return _plain({
             "lag_edges": self.empirical.edges.tolist(),
-            "directions": [direction_label(d) for d in self.empirical.directions],
+            "directions": [direction_words(d, "label") for d in self.empirical.directions],
             "angle_tolerance": self.empirical.angle_tolerance,
             "fit_estimator": self.fit_estimator,
             "model": self.fit.as_record(),
@@ -801,7 +799,7 @@ def analyse_variogram(
     directional = {}
     dir_model = fit.model if fit.model in MODELS else model
     for d in emp.directions:
-        label = direction_label(d)
+        label = direction_words(d, "label")
         c = emp.curve(label, fit_estimator)
         start = (fit.nugget, fit.partial_sill, fit.range_parameter) if fit.converged else None
         directional[label] = fit_variogram(c["mean_distance"], c["gamma"], c["pairs"], model=dir_model,
@@ -885,52 +883,6 @@ def expected_difference_sd(fit: VariogramFit, h) -> np.ndarray:
     g = fit.nugget + fit.partial_sill * _structure(fit.model, np.abs(h), fit.range_parameter)
     return np.sqrt(2.0 * g)
 
-
-def expected_mean_difference_sd(fit: VariogramFit, xy, indices) -> np.ndarray:
-    """Standard deviation of a point minus the plain mean of its neighbours, from the model.
-
-    ``Var(Z_0 - mean_j Z_j) = (2/m) sum_j gamma(d_0j) - (1/m^2) sum_j sum_k gamma(d_jk)``
-    (intrinsic stationarity; distinct records, so ``gamma`` includes the
-    nugget except for ``j == k``).
-
-    Parameters
-    ----------
-    fit : VariogramFit
-    xy : array_like, shape (n, 2)
-    indices : ndarray of int, shape (n, m)
-        Neighbour rows padded with -1 (as in :class:`pointsift.graph.NeighbourGraph`).
-
-    Returns
-    -------
-    ndarray, shape (n,)
-        NaN for points without neighbours.
-    """
-    xy = _as_xy(xy)
-    indices = np.asarray(indices, dtype=np.int64)
-    n, m = indices.shape
-    out = np.full(n, np.nan)
-
-    def gamma_distinct(d):
-        return fit.nugget + fit.partial_sill * _structure(fit.model, d, fit.range_parameter)
-
-    step = max(1, int(2_000_000 // max(m * m, 1)))
-    for start in range(0, n, step):
-        idx = indices[start:start + step]
-        valid = idx >= 0
-        count = valid.sum(axis=1)
-        nb = xy[np.where(valid, idx, 0)]
-        d0 = np.hypot(nb[..., 0] - xy[start:start + step, None, 0], nb[..., 1] - xy[start:start + step, None, 1])
-        term0 = np.where(valid, gamma_distinct(d0), 0.0).sum(axis=1)
-        djk = np.hypot(nb[:, :, None, 0] - nb[:, None, :, 0], nb[:, :, None, 1] - nb[:, None, :, 1])
-        both = valid[:, :, None] & valid[:, None, :] & ~np.eye(m, dtype=bool)[None]
-        term1 = np.where(both, gamma_distinct(djk), 0.0).sum(axis=(1, 2))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            var = 2.0 * term0 / count - term1 / count.astype(float) ** 2
-        out[start:start + step] = np.where(count > 0, np.sqrt(np.maximum(var, 0.0)), np.nan)
-    return out
-
-
-# --------------------------------------------------------------------------- figures
 
 def _cloud_sample(pairs: PairSet, diff: np.ndarray, max_points: int, seed: int):
     ok = np.flatnonzero(np.isfinite(diff) & (pairs.distance > 0))
@@ -1060,9 +1012,9 @@ def plot_variogram(analysis: VariogramAnalysis):
     left.set_title("Omnidirectional", fontsize=10)
     left.legend(fontsize=7)
     for d in emp.directions:
-        label = direction_label(d)
+        label = direction_words(d, "label")
         c = emp.curve(label, analysis.fit_estimator)
-        name = DIRECTION_NAMES.get(d, f"azimuth {label}")
+        name = direction_words(d, "abbrev")
         line = right.plot(c["mean_distance"], c["gamma"], "o", ms=4, label=f"{name} ({label})")[0]
         f = analysis.directional_fits.get(label)
         if f is not None and f.model in MODELS and math.isfinite(f.range_parameter):

@@ -13,23 +13,15 @@ import math
 
 import numpy as np
 
+from ..vocabulary import direction_words
 from .figures import WIDTH, new_figure
 from .numbers import format_length, format_number, plural
 
-__all__ = ["plot_histogram", "plot_strip_profiles", "plot_lag_panels", "plot_variogram", "direction_words",
+__all__ = ["plot_histogram", "plot_strip_profiles", "plot_lag_panels", "plot_variogram",
            "value_axis"]
 
 _BAR = "#4c7fb0"
 _FLAG = "#D55E00"
-
-_DIRECTIONS = {90.0: "west-east", 0.0: "south-north", 45.0: "south-west to north-east", 135.0: "south-east to north-west"}
-
-
-def direction_words(direction) -> str:
-    """``90`` -> ``west-east``; other azimuths as ``azimuth 30°``."""
-    d = float(direction) % 180.0
-    return _DIRECTIONS.get(d, f"azimuth {d:g}\N{DEGREE SIGN}")
-
 
 def value_axis(label: str, detrended: bool = False) -> str:
     """Axis title for values: the column name and that its unit is the data's own."""

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 from html import escape
 
-from .charts import direction_words
+from ..vocabulary import direction_words
 from .numbers import format_length, format_number, people_text, plural
 
 __all__ = ["distribution_section", "local_section", "variogram_section", "strips_section", "lag_pairs_section",
