@@ -538,3 +538,16 @@ def test_ids_and_reasons_are_shown_as_text_not_markup(tmp_path):
     assert "<b>W" not in report.html
     shown = {r["cells"][1]["text"] for r in page.table_rows}
     assert '<b>W"10&</b>' in shown
+
+
+def test_describe_with_screen_reports_the_screens_own_numbers(screened, tmp_path):
+    json_path = tmp_path / "with_screen.json"
+    code = main(["-q", "describe", screened["run"].input_path, "--value", "level_m", "--id", "well_id", "--with-screen",
+                 "--summary-json", str(json_path)])
+    assert code == 0
+    summary, screen = json.loads(json_path.read_text()), screened["summary"]
+    assert summary["command"] == "describe" and summary["title"].startswith("Description of level_m")
+    assert summary["counts"] == screen["counts"] and summary["thresholds"] == screen["thresholds"]
+    assert summary["flagged"]["neighbourhoods"] and summary["flagged"]["rows"] == screen["flagged"]["rows"]
+    assert summary["variogram"]["model"] == screen["variogram"]["model"]  # one function makes both
+    assert summary["local_evidence"]["quadrant_counts"] == screen["local_evidence"]["quadrant_counts"]

@@ -141,7 +141,7 @@ def plot_variogram(v: dict, drawing: dict, *, label: str):
     curves = drawing.get("curves", {})
     top = float(v["lag_edges"][-1]) if v.get("lag_edges") else 1.0
     unit, word = _distance_axis(top)
-    fig = new_figure(WIDTH, 6.8)
+    fig = new_figure(WIDTH, 8.0)
     upper, lower = fig.subplots(2, 1)
     model = v.get("model", {})
 
@@ -179,7 +179,8 @@ def plot_variogram(v: dict, drawing: dict, *, label: str):
         ax.set_ylabel(f"semivariance (squared units of {label})")
         _people_ticks(ax)
         ax.set_xlim(0, top / unit)
-        ax.legend(fontsize=8, loc="lower right")
+        ax.legend(fontsize=8.5, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncols=2 if ax is lower else 1,
+                  frameon=False)
     if ceiling:
         lower.set_ylim(0, ceiling)
     return fig

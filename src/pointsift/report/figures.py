@@ -299,6 +299,9 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
     ax = fig.add_subplot()
     record = {"drawn": {}, "shaded": {}, "labelled": 0, "max_points": int(max_points), "unlocated": int((~located).sum())}
     record.update(_shade_values(ax, fig, km, values, map_data.status, value_label, seed))
+    # many flagged points: smaller markers, so the map is not one carpet of diamonds
+    flagged_n = int(np.isin(status, ("suspect", "review")).sum())
+    shrink = float(np.clip(np.sqrt(150.0 / flagged_n), 0.3, 1.0)) if flagged_n else 1.0
     for name in STATUS_ORDER:
         style = STATUS_STYLE[name]
         rows = np.flatnonzero((status == name) & located)
@@ -319,7 +322,8 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
         kwargs = ({"edgecolors": edge, "linewidths": 0.6} if edge != "none" and style["marker"] != "x"
                   else {"linewidths": 1.0 if style["marker"] == "x" else 0})
         ax.scatter(km[rows, 0], km[rows, 1], marker=style["marker"], c=style["colour"],
-                   s=style["size"] * (0.6 if name == "ok" else 1.0), alpha=0.7 if name == "ok" else 1.0, label=count_label,
+                   s=style["size"] * (0.6 if name == "ok" else shrink if name in ("suspect", "review") else 1.0),
+                   alpha=0.7 if name == "ok" else 1.0, label=count_label,
                    zorder={"ok": 3, "unscreened": 4, "review": 5, "suspect": 6}[name], **kwargs)
         record["drawn"][name] = int(rows.size)
     _decorate_map(ax, km, crs_label, _north_note(north_offset))
@@ -330,11 +334,13 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
                  fontsize=11)
     suspects = np.flatnonzero((status == "suspect") & located)
     if suspects.size and screened:
-        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))][:max_labels]
+        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))]
         review = np.flatnonzero((status == "review") & located)
-        placed = place_labels(ax, km[order], [str(ids[r]) for r in order], obstacles_xy=km[np.concatenate([suspects, review])])
+        placed = place_labels(ax, km[order], [str(ids[r]) for r in order],
+                              obstacles_xy=km[np.concatenate([suspects, review])], marker_px=7.0 * math.sqrt(shrink),
+                              limit=max_labels)
         record.update(labelled=placed["labelled"], labels_with_leader=placed["with_leader"],
-                      labels_overlapping=placed["overlapping"])
+                      labels_overlapping=placed["overlapping"], labels_left_out=placed["left_out"])
     return fig, record
 
 

@@ -156,7 +156,8 @@ def _map_section(summary: dict, figures: dict) -> str:
         if n_suspect:
             labelled = m.get("labelled", 0)
             parts.append("Every suspect is labelled with its id." if labelled >= n_suspect
-                         else f"The strongest {labelled:,} of {n_suspect:,} suspects are labelled with their id.")
+                         else f"{labelled:,} of the {n_suspect:,} suspects are labelled with their id: the strongest "
+                              "that have room for a label without covering another label or a flagged point.")
     else:
         parts.append("The layer was described, not screened: points with a usable value are dots, points without one "
                      "crosses.")

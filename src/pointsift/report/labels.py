@@ -4,8 +4,8 @@ Labels are placed strongest first. Each tries positions around its point
 (right, upper right, above, ... then the same ring farther out, joined to the
 point by a thin leader line) and takes the first whose box overlaps no label
 already placed, no flagged marker and stays inside the map frame; when every
-position collides it takes the one that overlaps least (and the record
-counts it). This is the usual point-feature label placement by candidate
+position collides the label is left out (``skip_crowded``, the default; the
+record counts it) or, if asked, takes the position that overlaps least. This is the usual point-feature label placement by candidate
 positions (common practice in cartography).
 """
 
@@ -29,7 +29,7 @@ def _overlap(box, boxes: np.ndarray) -> float:
 
 
 def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0, colour: str = "#7a2a00",
-                 marker_px: float = 7.0) -> dict:
+                 marker_px: float = 7.0, skip_crowded: bool = True, limit: int | None = None) -> dict:
     """Annotate ``texts`` at ``points_xy`` (data units) without overlaps where possible.
 
     Parameters
@@ -41,12 +41,15 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
     texts : sequence of str
     obstacles_xy : ndarray, shape (m, 2)
         Other markers labels should not cover (data units).
+    limit : int, optional
+        Stop after this many labels are placed.
 
     Returns
     -------
     dict
         ``labelled``, ``with_leader`` (placed away from the point, with a
-        leader line) and ``overlapping`` (no free position was found).
+        leader line), ``overlapping`` (placed although no free position was
+        found) and ``left_out`` (no free position; not labelled).
     """
     from matplotlib import patheffects
 
@@ -62,8 +65,11 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
     r = marker_px * scale / 2
     placed = [np.column_stack([obs - r, obs + r])] if obs.size else []
     halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
-    record = {"labelled": 0, "with_leader": 0, "overlapping": 0}
-    for (px, py), text in zip(pts, texts):
+    record = {"labelled": 0, "with_leader": 0, "overlapping": 0, "left_out": 0}
+    anchors = np.asarray(points_xy, dtype=float).reshape(-1, 2)
+    for (px, py), text, anchor in zip(pts, texts, anchors):
+        if limit is not None and record["labelled"] >= limit:
+            break
         w, h = char_w * len(text) + 4, line_h
         boxes = np.concatenate(placed) if placed else np.empty((0, 4))
         best, best_cost = None, np.inf
@@ -82,10 +88,13 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
             if best_cost == 0:
                 break
         box, ring = best
+        if best_cost > 0 and skip_crowded:
+            record["left_out"] += 1
+            continue
         centre = ((box[0] + box[2]) / 2, (box[1] + box[3]) / 2)
         offset = (centre[0] - px) / scale, (centre[1] - py) / scale
         arrow = {"arrowstyle": "-", "color": colour, "lw": 0.6, "shrinkA": 0, "shrinkB": 2} if ring > 1 else None
-        ann = ax.annotate(text, (float(points_xy[record["labelled"]][0]), float(points_xy[record["labelled"]][1])),
+        ann = ax.annotate(text, (float(anchor[0]), float(anchor[1])),
                           xytext=offset, textcoords="offset points", ha="center", va="center", fontsize=fontsize,
                           color=colour, path_effects=halo, zorder=8, arrowprops=arrow, annotation_clip=False)
         ann.set_in_layout(False)
