@@ -202,6 +202,9 @@ def _north_note(north_offset: float | None) -> str:
     return f"arrow: grid north; true north differs by {abs(north_offset):.2f}\N{DEGREE SIGN} here"
 
 
+#: Parts of a map (axes fractions) that hold the scale bar, the north note and the north arrow.
+_MAP_FURNITURE = ((0.0, 0.0, 0.36, 0.11), (0.4, 0.0, 1.0, 0.05), (0.9, 0.78, 1.0, 1.0))
+
 _SHADE = ("#f6f6ef", "#d9e2cf", "#a9c1a1", "#6f9477", "#3f6650")
 #: Points the value shading is interpolated between, at most (seeded sample beyond).
 SHADE_POINTS = 20_000
@@ -338,7 +341,7 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
         review = np.flatnonzero((status == "review") & located)
         placed = place_labels(ax, km[order], [str(ids[r]) for r in order],
                               obstacles_xy=km[np.concatenate([suspects, review])], marker_px=7.0 * math.sqrt(shrink),
-                              limit=max_labels)
+                              limit=max_labels, reserved=_MAP_FURNITURE)
         record.update(labelled=placed["labelled"], labels_with_leader=placed["with_leader"],
                       labels_overlapping=placed["overlapping"], labels_left_out=placed["left_out"])
     return fig, record

@@ -29,7 +29,8 @@ def _overlap(box, boxes: np.ndarray) -> float:
 
 
 def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0, colour: str = "#7a2a00",
-                 marker_px: float = 7.0, skip_crowded: bool = True, limit: int | None = None) -> dict:
+                 marker_px: float = 7.0, skip_crowded: bool = True, limit: int | None = None,
+                 reserved=()) -> dict:
     """Annotate ``texts`` at ``points_xy`` (data units) without overlaps where possible.
 
     Parameters
@@ -43,6 +44,9 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
         Other markers labels should not cover (data units).
     limit : int, optional
         Stop after this many labels are placed.
+    reserved : sequence of (x0, y0, x1, y1)
+        Parts of the map (axes fractions) kept free of labels: scale bar,
+        north arrow, notes.
 
     Returns
     -------
@@ -64,6 +68,9 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
     obs = to_px(obstacles) if obstacles.size else np.empty((0, 2))
     r = marker_px * scale / 2
     placed = [np.column_stack([obs - r, obs + r])] if obs.size else []
+    for x0, y0, x1, y1 in reserved:
+        (a, b), (c, d) = ax.transAxes.transform([(x0, y0), (x1, y1)])
+        placed.append(np.array([[a, b, c, d]]))
     halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
     record = {"labelled": 0, "with_leader": 0, "overlapping": 0, "left_out": 0}
     anchors = np.asarray(points_xy, dtype=float).reshape(-1, 2)
