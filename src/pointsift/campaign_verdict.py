@@ -3,24 +3,29 @@
 Statuses
 --------
 ``suspect``
-    The campaign screen calls the reading suspect and the well's own history
-    does not explain it (the well is not as far from its neighbours in most
-    campaigns); or its change since the previous campaign reaches
-    ``suspect_z`` against the neighbours' changes and the neighbours do not
-    change alike, and it is not the way back from an earlier odd reading; or
-    the history finds a spike (``suspect_z``), a step that persists (a
-    reference-point or datum change), a reading far outside the well's own
-    range, or an exact copy of an earlier reading together with any other
-    deviation; or the reading's location is farther from the well's usual
-    location than the well's nearest other well.
+    * the campaign screen calls the reading suspect, the well is not as far
+      from its neighbours in most campaigns, and something happened at this
+      reading (its change is out of line with the neighbours', or the history
+      finds a spike, a step or a reading outside the range), or nothing else
+      can judge it;
+    * its change since the previous campaign reaches ``suspect_z`` against
+      the neighbours' changes, the neighbours do not change alike, and it is
+      not the way back from an earlier odd reading;
+    * the history finds a spike (``suspect_z``) or a step that persists (a
+      reference-point or datum change) and the change screen saw the jump
+      too (or could not judge it), or a reading far outside the well's own
+      range, or an exact copy of an earlier reading together with any other
+      deviation;
+    * the reading's location is farther from the well's usual location than
+      the well's nearest other well.
 ``review``
     Any of those at the review level (``review_z``), a constant run, a
     broken seasonal pattern, a change over the longer span out of line, or a
-    small location change; and every
-    suspect whose neighbours changed together (their median change has the
-    same sign and at least half the size, or the change screen finds the
-    neighbours deviating alike): evidence of a real local change, such as a
-    new pumping centre, keeps a reading at ``review`` at most.
+    small location change; and every suspect whose neighbours changed
+    together (the change screen finds the neighbours' changes deviating
+    alike: echo or curvature, :mod:`pointsift.methods.local`): evidence of a
+    real local change, such as a new pumping centre, keeps a reading at
+    ``review`` at most.
 ``ok``
     At least one screen judged the reading and none flagged it. A reading
     equal to an earlier one to the last digit, with nothing else out of
@@ -94,14 +99,16 @@ def _date(days: float) -> str:
 
 
 def decide_readings(*, n, reasons, representative, represented_by, campaign_code, labels, values, camp, change, history,
-                    prev_row, shift, moved, nearest, days, config: ScreenConfig, span: int, min_campaigns: int) -> dict:
+                    prev_row, shift, moved, nearest, days, config: ScreenConfig, span: int, min_campaigns: int,
+                    season: np.ndarray) -> dict:
     """Status, score, reasons and per-screen columns for every reading.
 
     Parameters are the orchestration's per-row arrays (see
     :func:`pointsift.campaigns.screen_campaigns`): ``camp`` the campaign
     screen's columns, ``change`` the change screens' columns, ``history`` the
     history rules' evidence, ``prev_row`` each representative reading's
-    previous reading of the same well (-1 for none). Decisions follow the
+    previous reading of the same well (-1 for none), ``season`` each
+    reading's season label ("" without seasons). Decisions follow the
     module docstring; this function is long because it states every rule
     and sentence in one place.
 
@@ -113,14 +120,23 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
     """
     rz, sz = config.review_z, config.suspect_z
     rep = representative & (reasons == "")
-    z_in, coherent = change["change_z"], change["coherent"]
+    z_raw, coherent = change["change_z"], change["coherent"]
+    # a well whose seasonal swing is larger than its neighbours' changes out of line every year into the
+    # same season: its change is judged against its own usual change z into that season (median of at
+    # least 3), so only what is new stands out
+    key = pd.DataFrame({"w": history["_well"], "s": season, "z": np.where(rep, z_raw, np.nan)})
+    grouped = key.groupby(["w", "s"]).z
+    usual = grouped.transform("median").to_numpy()
+    usual = np.where(grouped.transform("count").to_numpy() >= 3, usual, 0.0)
+    usual = np.where(np.isfinite(usual), usual, 0.0)
+    z_in = z_raw - usual
     ch, nbmed, nbsd = change["change"], change["nb_median"], change["nb_sd"]
     with np.errstate(invalid="ignore"):
         absz = np.abs(z_in)
         prev = np.maximum(prev_row, 0)
         prev_ok = (prev_row >= 0) & (change["change_from"] == campaign_code[prev])
         returning = prev_ok & (((np.abs(z_in[prev]) >= rz) & (np.sign(z_in[prev]) == -np.sign(z_in))) | history["spike"][prev])
-        alike = np.isfinite(ch) & (((absz >= rz) & coherent) | ((np.sign(nbmed) == np.sign(ch)) & (np.abs(nbmed) >= 0.5 * np.abs(ch)) & (ch != 0)))
+        alike = (np.isfinite(ch) & (absz >= rz) & coherent) | (np.isfinite(change["span_z"]) & change["span_coherent"])
         change_review = rep & (absz >= rz) & ~returning
         lone_change = change_review & (absz >= sz) & ~coherent
         span_z = change["span_z"]
@@ -147,16 +163,28 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         many = groups.transform("count").to_numpy() >= min_campaigns
         with np.errstate(invalid="ignore"):
             persistent = rep & many & (np.abs(typical_z) >= rz) & (np.abs(camp_z - typical_z) < rz)
-    camp_suspect = rep & (camp["status"] == "suspect") & ~persistent
+    # the campaign screen's suspect stands when the history or the change agree that something happened at this
+    # reading, or when neither can judge it; a reading whose change is in line with its neighbours' and whose
+    # history shows nothing differs from its neighbours as it always did: a review, not a new mistake
+    corroborated = change_review | spike | outside | step | (~np.isfinite(z_in) & ~history["judged"])
+    in_line = rep & ~corroborated & (np.isfinite(z_in) | history["judged"])
+    camp_suspect = rep & (camp["status"] == "suspect") & ~persistent & ~in_line
     copied_s = copied & (change_review | spike | camp_flag)
-    suspect = camp_suspect | lone_change | spike_s | step | outside | copied_s | moved_far
+    # the history's spike and step stand as suspect when the change screen saw the jump too (into the reading,
+    # or out of it for a spike), or could not judge it; otherwise they are worth a review
+    nxt = np.full(n, -1, dtype=np.int64)
+    nxt[prev_row[prev_row >= 0]] = np.flatnonzero(prev_row >= 0)
+    with np.errstate(invalid="ignore"):
+        jump_out = (nxt >= 0) & (np.abs(z_in[np.maximum(nxt, 0)]) >= rz)
+    supported = change_review | ~np.isfinite(z_in)
+    suspect = camp_suspect | lone_change | (spike_s & (supported | jump_out)) | (step & supported) | outside | copied_s | moved_far
     # a copy alone, and a reading after a step, are stated but do not flag: equal readings to the last digit
     # happen by chance (a few hundred distinct plausible values), and a step is flagged where it starts
     review_any = (rep & camp_flag) | change_review | span_review | spike | copied_s | constant | broken | moved_near
     capped = suspect & alike & ~moved_far
     suspect = suspect & ~capped
 
-    score = np.where(rep & np.isfinite(camp["score"]), np.where(persistent, 0.5 * camp["score"], camp["score"]), 0.0)
+    score = np.where(rep & np.isfinite(camp["score"]), np.where(persistent | in_line, 0.5 * camp["score"], camp["score"]), 0.0)
     with np.errstate(invalid="ignore"):
         score = np.fmax(score, np.where(change_review, np.where(coherent, 0.5, 1.0) * absz, 0.0))
         score = np.fmax(score, np.where(spike, np.abs(history["spike_z"]), 0.0))
@@ -173,8 +201,9 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
                     flags=dict(change_review=change_review, lone_change=lone_change, returning=returning & (absz >= rz),
                                span_review=span_review, spike=spike, step=step, outside=outside, copied=copied,
                                constant=constant, broken=broken, after=after, moved=moved_far | moved_near, capped=capped,
-                               persistent=persistent & camp_flag, judged=judged),
-                    typical_z=typical_z, min_campaigns=min_campaigns, span=span)
+                               persistent=persistent & camp_flag, in_line=in_line & ~persistent & (camp["status"] == "suspect"),
+                               judged=judged),
+                    typical_z=typical_z, min_campaigns=min_campaigns, span=span, usual=usual)
     flags = np.full(n, "", dtype=object)
     for name, mask in (("spike", spike), ("step", step), ("after step", after), ("outside own range", outside),
                        ("copied", copied), ("constant", constant), ("seasonal pattern", broken)):
@@ -198,7 +227,7 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         "change": np.round(ch, 6),
         "neighbours_expected_change": np.round(change["expected_change"], 6),
         "neighbours_median_change": np.round(nbmed, 6),
-        "change_z": np.round(z_in, 4),
+        "change_z": np.round(z_raw, 4),
         "neighbours_changed_alike": np.where(np.isfinite(z_in), np.where(alike, "yes", "no"), "").astype(object),
         "span_from_campaign": label_of(change["span_from"]),
         "span_change": np.round(change["span_change"], 6),
@@ -213,7 +242,7 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
 
 
 def _reasons(*, n, reasons, rep, represented_by, campaign_code, labels, values, camp, change, history, prev_row, shift,
-             days, flags, typical_z, min_campaigns, span) -> np.ndarray:
+             days, flags, typical_z, min_campaigns, span, usual) -> np.ndarray:
     """Plain-language reasons per reading (all the evidence that fired, with its numbers)."""
     out = np.full(n, "", dtype=object)
     extras = pd.Series(represented_by[represented_by >= 0]).value_counts()
@@ -242,6 +271,7 @@ def _reasons(*, n, reasons, rep, represented_by, campaign_code, labels, values, 
                 f"{_moved_text(c['change'][i])} {_g(abs(c['change'][i]))} since {labels[c['change_from'][i]]} while its {k} "
                 f"neighbours {_moved_text(c['nb_median'][i])} {_g(abs(c['nb_median'][i]))} +- {_g(c['nb_sd'][i])} "
                 f"(expected change {_g(c['expected_change'][i])}, z = {c['change_z'][i]:.1f})"
+                + (f"; judged against this well's usual change z of {usual[i]:.1f} into this season" if abs(usual[i]) >= 1 else "")
                 + ("; the neighbours' changes deviate alike" if c["coherent"][i] else "")
             )
         elif flags["returning"][i]:
@@ -282,6 +312,10 @@ def _reasons(*, n, reasons, rep, represented_by, campaign_code, labels, values, 
             if flags["persistent"][i]:
                 sentence += (f"; but this well sits as far from its neighbours in most campaigns (median z = {typical_z[i]:.1f}): "
                              "a persistent local feature or a location/reference error, not this reading alone")
+            elif flags["in_line"][i]:
+                sentence += ("; but its change is in line with its neighbours' and its own history shows nothing at this "
+                             "reading: a lasting difference from the neighbours (check the location and reference point), "
+                             "not a new mistake")
             parts.append(sentence)
         elif camp["reasons"][i]:
             parts.append(f"campaign screen not run: {camp['reasons'][i]}")

@@ -32,7 +32,7 @@ from .errors import ConfigError, InputError
 from .graph import build_graph, coincident_groups
 from .io import SourceInfo
 from .methods.change import change_screen
-from .methods.history import history_screen, theil_sen
+from .methods.history import history_screen, last_digit, relative_series, series_statistics, theil_sen
 from .methods.local import _masked_median
 from .pipeline import automatic_max_distance, screen_frame
 from .prepare import prepare
@@ -314,10 +314,21 @@ def _history(matrix, values, regional, campaigns_info, config: CampaignConfig):
         "season_usual": np.full(n, np.nan), "season_years": np.zeros(n, dtype=np.int64),
         "after_step": np.full(n, -1, dtype=np.int64), "reading_sd": np.full(n, np.nan),
     }
+    out["prior_reading_sd"] = None
     seasons = np.asarray(campaigns_info.season, dtype=object)
     years = np.asarray(campaigns_info.year)
     use_seasons = bool(np.any(seasons != ""))
     sc = config.screen
+    # a programme-wide reading spread (median over the wells judged) to pool each well's own with
+    spreads = []
+    for w in range(matrix.shape[0]):
+        codes = np.flatnonzero(matrix[w] >= 0)
+        if codes.size >= config.min_campaigns:
+            rows = matrix[w, codes]
+            u = relative_series(values[rows], regional[rows], seasons[codes] if use_seasons else None)
+            spreads.append(series_statistics(u, last_digit(values[rows])).reading_sd)
+    prior = float(np.nanmedian(spreads)) if spreads else None
+    out["prior_reading_sd"] = prior
     for w in range(matrix.shape[0]):
         codes = np.flatnonzero(matrix[w] >= 0)
         if codes.size == 0:
@@ -326,7 +337,7 @@ def _history(matrix, values, regional, campaigns_info, config: CampaignConfig):
         ev = history_screen(
             values[rows], regional=regional[rows], season=seasons[codes] if use_seasons else None,
             year=years[codes] if use_seasons else None, min_campaigns=config.min_campaigns,
-            review_z=sc.review_z, suspect_z=sc.suspect_z,
+            review_z=sc.review_z, suspect_z=sc.suspect_z, prior_sd=prior,
         )
         out["count"][rows] = codes.size
         if not ev.judged:
@@ -555,6 +566,7 @@ def screen_campaigns(
         labels=labels, values=values, camp=camp, change=change, history=history, prev_row=prev_row,
         shift=shift, moved=moved, nearest=nearest[np.maximum(well_codes, 0)], days=info.days, config=sc,
         span=span, min_campaigns=config.min_campaigns,
+        season=np.where(info.code >= 0, np.asarray(info.season, dtype=object)[np.maximum(info.code, 0)], ""),
     )
     timings["verdict_s"] = time.perf_counter() - t
 
@@ -596,7 +608,8 @@ def screen_campaigns(
         "versions": library_versions(),
         "caution": CAUTION,
     }
-    series = {"matrix": matrix, "neighbour_level": neighbour_level, "values": values}
+    series = {"matrix": matrix, "neighbour_level": neighbour_level, "values": values, "campaign_year": info.decimal_year,
+              "well_names": well_names}
     return CampaignResult(out, wells, changes, run_info, counts, series, info.labels)
 
 

@@ -59,6 +59,7 @@ __all__ = [
     "theil_sen",
     "history_screen",
     "last_digit",
+    "pooled_sd",
 ]
 
 _MAD_TO_SD = 1.482602218505602  # 1 / Phi^-1(3/4), common practice
@@ -467,6 +468,21 @@ def theil_sen(t: np.ndarray, values: np.ndarray) -> tuple[float, float]:
     return slope, float(np.median(v) - slope * np.median(t))
 
 
+def pooled_sd(own: float, own_df: float, prior: float | None, prior_df: float) -> float:
+    """Pool a series' own spread with a programme-wide one, like variances weighted by degrees of freedom.
+
+    Examples
+    --------
+    >>> round(pooled_sd(1.0, 8, 2.0, 8), 4)
+    1.5811
+    """
+    if prior is None or not np.isfinite(prior) or prior <= 0:
+        return own
+    if not np.isfinite(own):
+        return float(prior)
+    return float(np.sqrt((own_df * own * own + prior_df * prior * prior) / (own_df + prior_df)))
+
+
 @dataclass(frozen=True)
 class HistoryEvidence:
     """Per-reading output of :func:`history_screen` for one well.
@@ -520,6 +536,8 @@ def history_screen(
     constant_run: int = 4,
     copy_lookback: int = 10,
     floor: float | None = None,
+    prior_sd: float | None = None,
+    prior_df: float = 8.0,
 ) -> HistoryEvidence:
     """Run every history rule on one well's series.
 
@@ -541,6 +559,12 @@ def history_screen(
         Rule settings.
     floor : float, optional
         Smallest spread (default: the reading resolution).
+    prior_sd, prior_df : float, optional
+        A programme-wide reading spread and its weight: the well's own
+        spread (with ``n - 1`` degrees of freedom) is pooled with it like a
+        variance (:func:`pooled_sd`), because a MAD of a dozen changes is too
+        noisy a scale on its own. The level spread of the range rule is at
+        least twice the pooled reading spread.
 
     Returns
     -------
@@ -558,6 +582,8 @@ def history_screen(
     u = relative_series(v, regional, season)
     stats = series_statistics(u, floor)
     raw = series_statistics(v, floor)
+    reading_sd = pooled_sd(stats.reading_sd, n - 1, prior_sd, prior_df)
+    stats = SeriesStatistics(stats.n, stats.median, max(stats.level_sd, 2.0 * reading_sd), reading_sd * np.sqrt(2.0), reading_sd)
     spike_z, spike = spike_rule(u, stats.reading_sd, threshold=review_z)
     step_z, step = step_rule(u, stats.reading_sd, window=step_window, threshold=suspect_z)
     # the range is judged with each step taken out: the readings before a step are not out of range
@@ -565,7 +591,7 @@ def history_screen(
     for position in np.flatnonzero(step):
         lo = max(0, position - step_window)
         levelled[position:] -= np.median(u[position:position + step_window]) - np.median(u[lo:position])
-    range_z, outside = range_rule(levelled - np.median(levelled), stats.reading_sd, far_z=far_z)
+    range_z, outside = range_rule(levelled - np.median(levelled), stats.level_sd, far_z=far_z)
     copied = copied_rule(v, raw.change_sd, lookback=copy_lookback)
     constant = constant_rule(v, run=constant_run)
     if season is not None and year is not None:

@@ -1,0 +1,215 @@
+"""Report sections of ``pointsift campaigns``: the change map and the flagged wells' series.
+
+Each section is a function of a :class:`~pointsift.campaigns.CampaignResult`
+returning HTML and its figures (inline PNG data URIs), so the page works
+offline and alone. :func:`campaign_report_html` puts them on one page with
+the counts, the run record and the caution; :func:`write_campaign_report`
+writes it atomically.
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+import os
+import tempfile
+from html import escape
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import OutputError
+
+__all__ = ["change_map_section", "series_section", "campaign_report_html", "write_campaign_report",
+           "plot_change_map", "plot_flagged_series"]
+
+_STATUS_COLOURS = {"suspect": "#b2182b", "review": "#e08214", "ok": "#4d4d4d", "unscreened": "#bdbdbd"}
+
+
+def _data_uri(fig) -> str:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+    return "data:image/png;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _last_pair(result):
+    changes = result.changes
+    if len(changes) == 0 or "pair" not in changes:
+        return None
+    consecutive = changes[changes.pair == "consecutive"]
+    if len(consecutive) == 0:
+        return None
+    labels = list(result.campaign_labels)
+    last = max(consecutive.to_campaign.unique(), key=labels.index)
+    at_last = consecutive[consecutive.to_campaign == last]
+    first = at_last.from_campaign.value_counts().index[0]
+    return at_last[at_last.from_campaign == first], first, last
+
+
+def plot_change_map(pair, first: str, last: str, review_z: float, crs=None):
+    """Map of each well's change between two campaigns; wells whose change is out of line are ringed.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    x = pair.geometry.x.to_numpy()
+    y = pair.geometry.y.to_numpy()
+    change = pair["change"].to_numpy(dtype=float)
+    z = pair["change_z"].to_numpy(dtype=float)
+    fig, ax = plt.subplots(figsize=(7.5, 6.0))
+    limit = float(np.nanpercentile(np.abs(change), 98)) if np.isfinite(change).any() else 1.0
+    limit = limit if limit > 0 else 1.0
+    dots = ax.scatter(x, y, c=change, cmap="RdBu", vmin=-limit, vmax=limit, s=22, edgecolors="none")
+    out = np.isfinite(z) & (np.abs(z) >= review_z)
+    ax.scatter(x[out], y[out], s=90, facecolors="none", edgecolors="black", linewidths=1.2,
+               label=f"change out of line with the neighbours (|z| >= {review_z:g})")
+    for xi, yi, name in zip(x[out], y[out], pair["well_id"].to_numpy()[out]):
+        ax.annotate(str(name), (xi, yi), xytext=(4, 4), textcoords="offset points", fontsize=7)
+    fig.colorbar(dots, ax=ax, shrink=0.8, label=f"change {first} to {last} (later minus earlier)")
+    if crs is not None and getattr(crs, "is_geographic", False):
+        ax.set_aspect(1.0 / np.cos(np.radians(np.nanmean(y))))
+        ax.set_xlabel("longitude")
+        ax.set_ylabel("latitude")
+    else:
+        ax.set_aspect("equal")
+        ax.set_xlabel("x")
+        ax.set_ylabel("y")
+    if out.any():
+        ax.legend(loc="lower left", fontsize=8)
+    ax.set_title(f"Change between {first} and {last}: {len(pair)} wells measured in both")
+    return fig
+
+
+def change_map_section(result) -> tuple[str, dict]:
+    """HTML of the change map between the last two campaigns, and its figure."""
+    got = _last_pair(result)
+    if got is None:
+        return "<section id='change-map'><h2>Change between the last two campaigns</h2><p>No change could be screened.</p></section>", {}
+    pair, first, last = got
+    review_z = result.run_info["parameters"]["screen"]["review_z"]
+    uri = _data_uri(plot_change_map(pair, first, last, review_z, crs=result.changes.crs))
+    z = pair["change_z"].to_numpy(dtype=float)
+    text = (f"<p>{len(pair)} wells measured in {escape(first)} and {escape(last)}; median change "
+            f"{np.nanmedian(pair['change']):.3g}; {int(np.sum(np.abs(z) >= review_z))} changes out of line with the "
+            "neighbours' changes (ringed and named). A regional rise or fall colours the whole map alike and rings nothing.</p>")
+    html = (f"<section id='change-map'><h2>Change between the last two campaigns</h2>{text}"
+            f"<figure><img alt='change map' src='{uri}'><figcaption>Change of each well, coloured; "
+            "out-of-line changes ringed</figcaption></figure></section>")
+    return html, {"change_map": uri}
+
+
+def plot_flagged_series(result, wells: list, max_panels: int = 12):
+    """Small multiples: each flagged well's readings over its neighbours' median series.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    s = result.series
+    matrix, years = s["matrix"], s["campaign_year"]
+    names = list(s["well_names"])
+    status = result.readings["reading_status"].to_numpy()
+    wells = wells[:max_panels]
+    cols = 3 if len(wells) > 4 else max(1, len(wells))
+    rows = int(np.ceil(len(wells) / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(3.3 * cols, 2.4 * rows), squeeze=False)
+    for ax in axes.ravel()[len(wells):]:
+        ax.set_visible(False)
+    for ax, well in zip(axes.ravel(), wells):
+        w = names.index(well)
+        codes = np.flatnonzero(matrix[w] >= 0)
+        rws = matrix[w, codes]
+        t = years[codes]
+        ax.plot(t, s["neighbour_level"][rws], color="#9e9e9e", lw=1.2, label="neighbours' median")
+        ax.plot(t, s["values"][rws], color="#2b2b2b", lw=0.8, marker="o", ms=2.5, label="this well")
+        for word in ("review", "suspect"):
+            hit = status[rws] == word
+            ax.scatter(t[hit], s["values"][rws][hit], color=_STATUS_COLOURS[word], s=28, zorder=3, label=word)
+        ax.set_title(str(well), fontsize=8)
+        ax.tick_params(labelsize=7)
+    handles, labels = axes.ravel()[0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="lower center", ncol=4, fontsize=8, frameon=False)
+    fig.tight_layout(rect=(0, 0.05, 1, 1))
+    return fig
+
+
+def series_section(result, max_panels: int = 12) -> tuple[str, dict]:
+    """HTML of the flagged wells' series (strongest first), and its figure."""
+    readings = result.readings
+    flagged = readings[readings.reading_status == "suspect"]
+    if len(flagged) == 0:
+        return "<section id='series'><h2>Flagged wells' series</h2><p>No reading is suspect.</p></section>", {}
+    id_column = result.run_info["parameters"]["screen"]["id"]
+    order = flagged.assign(_w=flagged[id_column].astype(str)).groupby("_w").reading_score.max().sort_values(ascending=False)
+    wells = list(order.index)
+    uri = _data_uri(plot_flagged_series(result, wells, max_panels))
+    shown = min(len(wells), max_panels)
+    html = (f"<section id='series'><h2>Flagged wells' series</h2><p>{len(wells)} wells have a suspect reading; "
+            f"the {shown} with the strongest evidence are drawn: the well's representative readings (dark) over its "
+            "neighbours' median series (grey: each neighbour's reading minus its own median, the median of those, "
+            "put on this well's median level). A reading that leaves the grey line alone is what the history and "
+            "change screens look for.</p>"
+            f"<figure><img alt='flagged series' src='{uri}'></figure></section>")
+    return html, {"flagged_series": uri}
+
+
+_PAGE_CSS = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}"
+             "table{border-collapse:collapse}td,th{border:1px solid #ccc;padding:2px 8px;text-align:left}"
+             "img{max-width:100%}.caution{background:#fff6e0;padding:0.6em;border-left:4px solid #e08214}")
+
+
+def campaign_report_html(result) -> str:
+    """The whole page: counts, the two sections, the run record and the caution."""
+    info = result.run_info
+    counts = "".join(f"<tr><th>{escape(k)}</th><td>{v}</td></tr>" for k, v in result.counts.items())
+    change_html, _ = change_map_section(result)
+    series_html, _ = series_section(result)
+    record = "".join(f"<tr><th>{escape(str(k))}</th><td>{escape(str(info.get(k)))}</td></tr>"
+                     for k in ("input_path", "rows", "wells", "campaigns", "campaigns_screened", "campaign_rule",
+                               "representative_readings", "extra_readings", "change_span_campaigns", "moved_wells",
+                               "work_crs", "timings_s", "versions"))
+    return (
+        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>pointsift campaigns</title>"
+        f"<style>{_PAGE_CSS}</style></head><body><h1>Repeated campaigns: readings screened</h1>"
+        f"<p class='caution'>{escape(info['caution'])}</p>"
+        f"<section id='counts'><h2>Readings per status</h2><table>{counts}</table></section>"
+        f"{change_html}{series_html}<section id='run'><h2>Run</h2><table>{record}</table></section></body></html>"
+    )
+
+
+def write_campaign_report(result, path, *, overwrite: bool = False, protect: tuple = ()) -> Path:
+    """Write the campaign report page atomically (never over an input)."""
+    target = Path(path)
+    for other in protect:
+        if other and os.path.abspath(os.fspath(other)) == os.path.abspath(target):
+            raise OutputError(f"Refusing to write the report over {os.fspath(other)!r}. Choose another file name.")
+    if target.exists() and not overwrite:
+        raise OutputError(f"{str(target)!r} exists. Pass --overwrite to replace it, or choose another name.")
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(f"Folder {str(folder)!r} for {str(target)!r} does not exist. Create it first or choose another path.")
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as handle:
+            handle.write(campaign_report_html(result))
+        os.chmod(tmp, 0o644)
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return target
