@@ -92,7 +92,9 @@ def _typical_change(g: pd.DataFrame) -> float:
 def plant_errors(frame: gpd.GeoDataFrame, base: pd.DataFrame, rng, per_kind: int):
     """Plant the mistakes; return the planted frame, {row: kind} and the rows carrying a step after its start."""
     out = frame.copy()
-    series = base[base.reading_role == "represents the well"]
+    # each well's representative readings in time order (the file is not sorted by date)
+    series = base[base.reading_role == "represents the well"].assign(_t=pd.to_datetime(base.MSMT_DATE, utc=True))
+    series = series.sort_values(["STN_ID", "_t"], kind="stable")
     eligible = series[(series.history_campaigns >= 10) & (series.campaign_status != "") & series.change_z.notna()]
     wells = rng.permutation(eligible.STN_ID.unique())
     planted, carried = {}, []
@@ -181,6 +183,18 @@ def plant_sound(frame: gpd.GeoDataFrame, base: pd.DataFrame, rng):
     return out, np.array(decline_rows), np.array(centre_rows), well
 
 
+def _causes(run: pd.DataFrame) -> pd.Series:
+    """The evidence behind each reading's status, in words (for the false-alarm breakdown)."""
+    flags = run.history_flags.fillna("")
+    cause = np.where(run.location_shift_m.fillna(0) > 0.5, "location", "")
+    cause = np.where((cause == "") & flags.str.contains("spike"), "spike", cause)
+    cause = np.where((cause == "") & flags.str.contains(r"\bstep", regex=True), "step", cause)
+    cause = np.where((cause == "") & flags.str.contains("outside"), "range", cause)
+    cause = np.where((cause == "") & (run.campaign_status == "suspect"), "campaign screen", cause)
+    cause = np.where((cause == "") & (run.change_z.abs() >= 3.5), "change", cause)
+    return pd.Series(np.where(cause == "", "other", cause), index=run.index)
+
+
 def per_well_rule(frame: pd.DataFrame, rep: np.ndarray) -> np.ndarray:
     """Reading more than 3.5 robust sd of its well's series from the series median (representative readings)."""
     flagged = np.zeros(len(frame), dtype=bool)
@@ -236,6 +250,9 @@ def main() -> None:
           f"per-well rule {rule[judged].mean():.2%}")
     print(f"  review:  campaigns {(status[judged] == 'review').mean():.2%}, single screen {(single[judged_single] == 'review').mean():.2%}")
     print(f"  readings after a planted step (not counted above): {len(carried)}, suspect {(status[carried] == 'suspect').mean():.2%}")
+    causes = _causes(run)
+    false = judged & (status == "suspect")
+    print("  untouched suspects by evidence: " + ", ".join(f"{k} {v}" for k, v in causes[false].value_counts().items()))
     missed = rows[status[rows] != "suspect"]
     for r in missed[:12]:
         print(f"  missed {planted[r]:<18} {run.reading_status[r]:<8} {run.reading_reasons[r][:220]}")
