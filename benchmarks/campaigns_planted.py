@@ -253,8 +253,14 @@ def main() -> None:
     causes = _causes(run)
     false = judged & (status == "suspect")
     print("  untouched suspects by evidence: " + ", ".join(f"{k} {v}" for k, v in causes[false].value_counts().items()))
+    coded = run.WLM_QA_DESC.notna().to_numpy()
+    print(f"  suspect among untouched readings without a publisher's quality code: "
+          f"{(status[judged & ~coded] == 'suspect').mean():.2%} (campaigns), "
+          f"{(single[judged_single & ~coded] == 'suspect').mean():.2%} (single screen)")
+    for r in np.random.default_rng(1).choice(np.flatnonzero(false), size=min(6, int(false.sum())), replace=False):
+        print(f"  untouched suspect: {run.reading_reasons[r][:260]}")
     missed = rows[status[rows] != "suspect"]
-    for r in missed[:12]:
+    for r in missed[:16]:
         print(f"  missed {planted[r]:<18} {run.reading_status[r]:<8} {run.reading_reasons[r][:220]}")
 
     sound_frame, decline, centre, well = plant_sound(frame, base, rng)

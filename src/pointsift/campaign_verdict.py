@@ -3,27 +3,31 @@
 Statuses
 --------
 ``suspect``
-    * the campaign screen calls the reading suspect, the well is not as far
-      from its neighbours in most campaigns, and something happened at this
-      reading (its change is out of line with the neighbours', or the history
-      finds a spike, a step or a reading outside the range), or nothing else
-      can judge it;
-    * its change since the previous campaign reaches ``suspect_z`` against
-      the neighbours' changes, the neighbours do not change alike, and it is
-      not the way back from an earlier odd reading;
-    * the history finds a spike (``suspect_z``) or a step that persists (a
-      reference-point or datum change) and the change screen saw the jump
-      too (or could not judge it), or a reading far outside the well's own
-      range, or an exact copy of an earlier reading together with any other
-      deviation;
-    * the reading's location is farther from the well's usual location than
-      the well's nearest other well.
+    Two independent pieces of evidence, one of them at the suspect level (the
+    other may be at the review level; an exact copy with any other piece), or
+    one very strong one. The pieces: the change since the previous campaign reaches
+    ``suspect_z`` against the neighbours' changes (judged against the well's
+    usual change into that season, not the way back from an earlier odd
+    reading, and the neighbours did not change together); the change over the
+    longer span does; the history finds a spike (``suspect_z``, with the
+    change screen seeing the jump into or out of it), a step that persists (a
+    reference-point or datum change) or a reading far outside the well's own
+    range; the campaign screen calls it suspect (and the well is not as far
+    from its neighbours in most campaigns); it equals an earlier reading to
+    the last digit. Very strong alone: a change at twice ``suspect_z``, a
+    location farther from the well's usual location than its nearest other
+    well, or the campaign screen's suspect when nothing else can judge the
+    reading.
 ``review``
-    Any of those at the review level (``review_z``), a constant run, a
+    One piece of that evidence alone (a campaign-screen suspect whose change
+    is in line with its neighbours' and whose history shows nothing says so:
+    a lasting difference from the neighbours, not a new mistake), any of them
+    at the review level (``review_z``), a constant run, a
     broken seasonal pattern, a change over the longer span out of line, or a
     small location change; and every suspect whose neighbours changed
     together (the change screen finds the neighbours' changes deviating
-    alike: echo or curvature, :mod:`pointsift.methods.local`): evidence of a
+    alike (echo or curvature, :mod:`pointsift.methods.local`) and at least two
+    neighbours moved the same way by half as much or more): evidence of a
     real local change, such as a new pumping centre, keeps a reading at
     ``review`` at most.
 ``ok``
@@ -136,9 +140,13 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         prev = np.maximum(prev_row, 0)
         prev_ok = (prev_row >= 0) & (change["change_from"] == campaign_code[prev])
         returning = prev_ok & (((np.abs(z_in[prev]) >= rz) & (np.sign(z_in[prev]) == -np.sign(z_in))) | history["spike"][prev])
-        alike = (np.isfinite(ch) & (absz >= rz) & coherent) | (np.isfinite(change["span_z"]) & change["span_coherent"])
+        # neighbours changed together: the change screen's coherence test, and at least two neighbours that
+        # moved the same way by at least half as much (from the regional change)
+        alike = rep & ((np.isfinite(ch) & (absz >= rz) & coherent & (change["moving_with"] >= 2))
+                       | (np.isfinite(change["span_z"]) & (np.abs(change["span_z"]) >= rz) & change["span_coherent"]
+                          & (change["span_moving_with"] >= 2)))
         change_review = rep & (absz >= rz) & ~returning
-        lone_change = change_review & (absz >= sz) & ~coherent
+        lone_change = change_review & (absz >= sz) & ~alike
         span_z = change["span_z"]
         span_review = rep & (np.abs(span_z) >= rz) & ~change["span_coherent"] & (~np.isfinite(z_in) | change_review)
         spike = rep & history["spike"]
@@ -163,24 +171,31 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         many = groups.transform("count").to_numpy() >= min_campaigns
         with np.errstate(invalid="ignore"):
             persistent = rep & many & (np.abs(typical_z) >= rz) & (np.abs(camp_z - typical_z) < rz)
-    # the campaign screen's suspect stands when the history or the change agree that something happened at this
-    # reading, or when neither can judge it; a reading whose change is in line with its neighbours' and whose
-    # history shows nothing differs from its neighbours as it always did: a review, not a new mistake
-    corroborated = change_review | spike | outside | step | (~np.isfinite(z_in) & ~history["judged"])
-    in_line = rep & ~corroborated & (np.isfinite(z_in) | history["judged"])
-    camp_suspect = rep & (camp["status"] == "suspect") & ~persistent & ~in_line
-    copied_s = copied & (change_review | spike | camp_flag)
-    # the history's spike and step stand as suspect when the change screen saw the jump too (into the reading,
-    # or out of it for a spike), or could not judge it; otherwise they are worth a review
     nxt = np.full(n, -1, dtype=np.int64)
     nxt[prev_row[prev_row >= 0]] = np.flatnonzero(prev_row >= 0)
     with np.errstate(invalid="ignore"):
         jump_out = (nxt >= 0) & (np.abs(z_in[np.maximum(nxt, 0)]) >= rz)
-    supported = change_review | ~np.isfinite(z_in)
-    suspect = camp_suspect | lone_change | (spike_s & (supported | jump_out)) | (step & supported) | outside | copied_s | moved_far
+        span_out = rep & (np.abs(span_z) >= sz) & ~(change["span_coherent"] & (change["span_moving_with"] >= 2))
+    # suspect takes two independent pieces of evidence at the suspect level (the neighbours' change, the change
+    # over the span, the history's spike (seen by the change screen into or out of it), step or range, the
+    # campaign screen, an exact copy), or one very strong one: a change at twice suspect_z, a far location
+    # change, or the campaign screen's suspect when nothing else can judge the reading
+    camp_alone = rep & (camp["status"] == "suspect") & ~persistent
+    evidence = np.stack([lone_change, span_out & ~returning, spike_s & (change_review | jump_out | ~np.isfinite(z_in)),
+                         step, outside, camp_alone, copied]).astype(np.int64)
+    count = evidence.sum(axis=0)
+    # the same pieces at the review level (a second piece may be weaker than the first)
+    weaker = np.stack([change_review & ~alike, rep & (np.abs(np.nan_to_num(span_z)) >= rz) & ~returning,
+                       spike & (change_review | jump_out | ~np.isfinite(z_in)), step, outside, rep & camp_flag & ~persistent,
+                       copied]).astype(np.int64).sum(axis=0)
+    unjudged_otherwise = ~np.isfinite(z_in) & ~history["judged"]
+    strong = (lone_change & (absz >= 2.0 * sz)) | moved_far | (camp_alone & unjudged_otherwise)
+    in_line = camp_alone & (weaker == 1) & ~unjudged_otherwise
+    suspect = rep & ((count >= 2) | ((count >= 1) & (weaker >= 2)) | (copied & (weaker >= 2)) | strong)
+    copied_s = copied & suspect
     # a copy alone, and a reading after a step, are stated but do not flag: equal readings to the last digit
     # happen by chance (a few hundred distinct plausible values), and a step is flagged where it starts
-    review_any = (rep & camp_flag) | change_review | span_review | spike | copied_s | constant | broken | moved_near
+    review_any = (rep & camp_flag) | change_review | span_review | spike | step | outside | copied_s | constant | broken | moved_near
     capped = suspect & alike & ~moved_far
     suspect = suspect & ~capped
 

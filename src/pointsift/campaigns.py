@@ -279,6 +279,8 @@ def _change_columns(n, pairs, results: dict, consecutive, spans):
     cols["coherent"] = np.zeros(n, dtype=bool)
     cols["span_coherent"] = np.zeros(n, dtype=bool)
     cols["nb_count"] = np.zeros(n, dtype=np.int64)
+    cols["moving_with"] = np.zeros(n, dtype=np.int64)
+    cols["span_moving_with"] = np.zeros(n, dtype=np.int64)
     records = []
     for a, b, wells in consecutive:
         both, rows_b, _ = pairs[(a, b)]
@@ -286,7 +288,8 @@ def _change_columns(n, pairs, results: dict, consecutive, spans):
         r, o = rows_b[take], results[(a, b)][take]
         for col, name in (("change", "change"), ("expected_change", "expected_change"), ("change_z", "change_z"),
                           ("nb_median", "neighbour_median_change"), ("nb_sd", "neighbour_change_sd"),
-                          ("nb_count", "change_neighbour_count"), ("coherent", "change_coherent")):
+                          ("nb_count", "change_neighbour_count"), ("coherent", "change_coherent"),
+                          ("moving_with", "neighbours_moving_with")):
             cols[col][r] = o[name].to_numpy()
         cols["change_from"][r] = a
         records.append(("consecutive", a, b, r, o))
@@ -295,7 +298,7 @@ def _change_columns(n, pairs, results: dict, consecutive, spans):
         o = results[(a, b)]
         for col, name in (("span_change", "change"), ("span_expected", "expected_change"), ("span_z", "change_z"),
                           ("span_nb_median", "neighbour_median_change"), ("span_nb_sd", "neighbour_change_sd"),
-                          ("span_coherent", "change_coherent")):
+                          ("span_coherent", "change_coherent"), ("span_moving_with", "neighbours_moving_with")):
             cols[col][rows_b] = o[name].to_numpy()
         cols["span_from"][rows_b] = a
         records.append(("span", a, b, rows_b, o))

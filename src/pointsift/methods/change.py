@@ -12,8 +12,10 @@ recognises; a lone well that jumps stands out. Local Moran's I and
 Getis-Ord Gi* of the changes (:mod:`pointsift.methods.autocorr`) add
 whether the well sits in a cluster of like changes or is a spatial outlier.
 
-The neighbours' median change and their robust spread (1.4826 MAD; common
-practice) are returned for the plain-language reason ("fell 6.2 while its 9
+How many neighbours moved the same way by at least half as much (from the
+regional change, the median of all) tells a group that fell together from a
+lone well. The neighbours' median change and their robust spread (1.4826
+MAD; common practice) are returned for the plain-language reason ("fell 6.2 while its 9
 neighbours fell 0.3 +- 0.4").
 """
 
@@ -26,7 +28,7 @@ from ..graph import NeighbourGraph
 from .autocorr import QUADRANT_WORDS, local_autocorrelation
 from .local import local_residuals
 
-__all__ = ["change_screen", "CHANGE_COLUMNS", "neighbour_change_summary"]
+__all__ = ["change_screen", "CHANGE_COLUMNS", "neighbour_change_summary", "neighbours_moving_with"]
 
 _MAD_TO_SD = 1.482602218505602  # 1 / Phi^-1(3/4), common practice
 
@@ -42,6 +44,7 @@ CHANGE_COLUMNS = (
     "neighbour_median_change",
     "neighbour_change_sd",
     "change_neighbour_count",
+    "neighbours_moving_with",
     "change_moran_i",
     "change_moran_quadrant",
     "change_moran_p_adjusted",
@@ -74,6 +77,45 @@ def neighbour_change_summary(change: np.ndarray, graph: NeighbourGraph) -> tuple
             median = np.nanmedian(nb, axis=1) if nb.shape[1] else np.full(len(change), np.nan)
             sd = _MAD_TO_SD * np.nanmedian(np.abs(nb - median[:, None]), axis=1) if nb.shape[1] else median
     return np.where(count > 0, median, np.nan), np.where(count > 0, sd, np.nan), count
+
+
+def neighbours_moving_with(change: np.ndarray, graph: NeighbourGraph, *, share: float = 0.5) -> np.ndarray:
+    """How many neighbours moved the same way as the point, by at least ``share`` of its move.
+
+    Moves are measured from the median change of all points (the regional
+    change), so a basin-wide decline moves nobody; a new pumping centre
+    moves a group together.
+
+    Parameters
+    ----------
+    change : ndarray
+        Change per point (NaN where unknown).
+    graph : NeighbourGraph
+        Neighbours.
+    share : float
+        Part of the point's own move a neighbour must reach.
+
+    Returns
+    -------
+    ndarray of int
+
+    Examples
+    --------
+    >>> from pointsift.graph import build_graph
+    >>> xy = np.array([[0, 0], [1, 0], [2, 0], [50, 0], [51, 0], [52, 0]], dtype=float)
+    >>> neighbours_moving_with(np.array([-5.0, -4.0, -3.0, 0.0, 0.1, -0.1]), build_graph(xy, k=2)).tolist()
+    [2, 2, 1, 0, 0, 0]
+    """
+    change = np.asarray(change, dtype=float)
+    finite = np.isfinite(change)
+    if not finite.any():
+        return np.zeros(change.size, dtype=np.int64)
+    move = change - np.median(change[finite])
+    idx = graph.indices
+    other = np.where(graph.mask, move[np.where(idx >= 0, idx, 0)], np.nan)
+    with np.errstate(invalid="ignore"):
+        alike = (np.sign(other) == np.sign(move)[:, None]) & (np.abs(other) >= share * np.abs(move)[:, None]) & (move[:, None] != 0)
+    return np.where(finite, alike.sum(axis=1), 0).astype(np.int64)
 
 
 def change_screen(
@@ -146,6 +188,7 @@ def change_screen(
             "neighbour_median_change": median,
             "neighbour_change_sd": sd,
             "change_neighbour_count": count.astype("int32"),
+            "neighbours_moving_with": neighbours_moving_with(change, used),
             "change_moran_i": moran_i,
             "change_moran_quadrant": quadrant,
             "change_moran_p_adjusted": p_adjusted,
