@@ -26,8 +26,9 @@ Statuses
     broken seasonal pattern, a change over the longer span out of line, or a
     small location change; and every suspect whose neighbours changed
     together (the change screen finds the neighbours' changes deviating
-    alike (echo or curvature, :mod:`pointsift.methods.local`) and at least two
-    neighbours moved the same way by half as much or more): evidence of a
+    alike (echo or curvature, :mod:`pointsift.methods.local`) and at least
+    two neighbours, and at least 30 % of them, moved the same way by half as
+    much or more): evidence of a
     real local change, such as a new pumping centre, keeps a reading at
     ``review`` at most.
 ``ok``
@@ -139,12 +140,16 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
         absz = np.abs(z_in)
         prev = np.maximum(prev_row, 0)
         prev_ok = (prev_row >= 0) & (change["change_from"] == campaign_code[prev])
-        returning = prev_ok & (((np.abs(z_in[prev]) >= rz) & (np.sign(z_in[prev]) == -np.sign(z_in))) | history["spike"][prev])
+        # the way back after an odd previous reading: the previous change was out of line the other way (and
+        # the history does not call this reading the spike), or the history calls the previous reading a spike
+        returning = prev_ok & ((((np.abs(z_in[prev]) >= rz) & (np.sign(z_in[prev]) == -np.sign(z_in))) & ~history["spike"])
+                               | history["spike"][prev])
         # neighbours changed together: the change screen's coherence test, and at least two neighbours that
         # moved the same way by at least half as much (from the regional change)
-        alike = rep & ((np.isfinite(ch) & (absz >= rz) & coherent & (change["moving_with"] >= 2))
+        group = np.maximum(2, np.ceil(0.3 * change["nb_count"]))
+        alike = rep & ((np.isfinite(ch) & (absz >= rz) & coherent & (change["moving_with"] >= group))
                        | (np.isfinite(change["span_z"]) & (np.abs(change["span_z"]) >= rz) & change["span_coherent"]
-                          & (change["span_moving_with"] >= 2)))
+                          & (change["span_moving_with"] >= group)))
         change_review = rep & (absz >= rz) & ~returning
         lone_change = change_review & (absz >= sz) & ~alike
         span_z = change["span_z"]
@@ -175,7 +180,7 @@ def decide_readings(*, n, reasons, representative, represented_by, campaign_code
     nxt[prev_row[prev_row >= 0]] = np.flatnonzero(prev_row >= 0)
     with np.errstate(invalid="ignore"):
         jump_out = (nxt >= 0) & (np.abs(z_in[np.maximum(nxt, 0)]) >= rz)
-        span_out = rep & (np.abs(span_z) >= sz) & ~(change["span_coherent"] & (change["span_moving_with"] >= 2))
+        span_out = rep & (np.abs(span_z) >= sz) & ~(change["span_coherent"] & (change["span_moving_with"] >= group))
     # suspect takes two independent pieces of evidence at the suspect level (the neighbours' change, the change
     # over the span, the history's spike (seen by the change screen into or out of it), step or range, the
     # campaign screen, an exact copy), or one very strong one: a change at twice suspect_z, a far location
