@@ -102,9 +102,10 @@ def neighbours_moving_with(change: np.ndarray, graph: NeighbourGraph, *, share: 
     Examples
     --------
     >>> from pointsift.graph import build_graph
-    >>> xy = np.array([[0, 0], [1, 0], [2, 0], [50, 0], [51, 0], [52, 0]], dtype=float)
-    >>> neighbours_moving_with(np.array([-5.0, -4.0, -3.0, 0.0, 0.1, -0.1]), build_graph(xy, k=2)).tolist()
-    [2, 2, 1, 0, 0, 0]
+    >>> xy = np.column_stack([[0, 1, 2, 50, 51, 52, 53, 54], np.zeros(8)]).astype(float)
+    >>> change = np.array([-5.0, -4.0, -1.5, 0, 0, 0, 0, 0])   # a group of three fell; the rest did not move
+    >>> neighbours_moving_with(change, build_graph(xy, k=2)).tolist()
+    [1, 1, 2, 0, 0, 0, 0, 0]
     """
     change = np.asarray(change, dtype=float)
     finite = np.isfinite(change)
