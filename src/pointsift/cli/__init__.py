@@ -19,6 +19,7 @@ from .._version import __version__
 from ..config import caller
 from ..errors import ConfigError, PointsiftError
 from .batch import batch
+from .campaigns import campaigns
 from .describe import describe
 from .options import config_from_options, screen_options, table_options
 from .screen import screen
@@ -61,7 +62,7 @@ def cli(ctx, verbose, quiet):
     ctx.obj["quiet"] = quiet
     _setup_logging(verbose, quiet)
 
-for _command in (screen, describe, batch):
+for _command in (screen, describe, batch, campaigns):
     cli.add_command(_command)
 
 
