@@ -17,8 +17,9 @@ import pytest
 from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
-from pointsift.graph import NeighbourGraph, build_graph
-from pointsift.methods.autocorr import QUADRANT_WORDS, benjamini_hochberg, local_autocorrelation
+from pointsift.graph import NeighbourGraph, build_graph, canonical_rank
+from pointsift.methods import autocorr
+from pointsift.methods.autocorr import QUADRANT_WORDS, benjamini_hochberg, draw_subsets, local_autocorrelation, point_keys, splitmix64
 
 libpysal = pytest.importorskip("libpysal")
 
@@ -90,7 +91,7 @@ def test_permutation_p_values_agree_loosely_with_esda(baltimore):
     assert stats.pearsonr(p_ours, p_esda)[0] > 0.95
     assert np.abs(p_ours - p_esda).max() < 0.06
     assert np.abs(p_ours - p_esda).mean() < 0.015
-    # one set of draws serves both statistics: esda's Gi* p-values agree too
+    # one set of draws per point serves both statistics: esda's Gi* p-values agree too
     assert stats.pearsonr(p_ours, ref["g_p_sim"])[0] > 0.95
     assert p_ours.min() >= 1 / 1000  # no refinement asked: esda's floor 1 / (P + 1)
 
@@ -176,25 +177,26 @@ def _brute_conditional_p(values, graph, rows, permutations, rng):
     return np.array(out)
 
 
-def test_shared_draws_agree_with_plain_conditional_permutation():
+def test_per_point_draws_agree_with_plain_conditional_permutation():
     xy, values = _field(400, 4)
     graph = build_graph(xy, k=8)
-    ours = local_autocorrelation(values, graph, permutations=999, seed=5, refine=False)
+    ours = local_autocorrelation(values, graph, permutations=999, seed=5, refine=False, keys=point_keys(xy, values))
     rows = np.arange(0, 400, 5)
     ref = _brute_conditional_p(values, graph, rows, 999, np.random.default_rng(6))
     assert stats.pearsonr(ours.p_value[rows], ref)[0] > 0.97
     assert np.abs(ours.p_value[rows] - ref).max() < 0.06
-    # draws holding the point itself are removed: slightly fewer than P per point
-    assert (ours.permutations <= 999).all() and (ours.permutations > 950).all()
+    # each point draws exactly P subsets of the other n - 1 values
+    assert (ours.permutations == 999).all()
 
 
 def test_distance_band_with_many_neighbour_counts_agrees_with_plain_permutation():
-    # a distance band gives every point its own neighbour count; each count has its
-    # own shared draws, extended only where points sit at the floor
+    # a distance band gives every point its own neighbour count (above and below
+    # the switch from Floyd's algorithm to a partial Fisher-Yates shuffle)
     xy, values = _field(500, 11)
-    graph = build_graph(xy, kind="band", within=900.0)
+    graph = build_graph(xy, kind="band", within=1300.0)
     counts = graph.counts
     assert np.unique(counts).size > 10
+    assert counts.min() < autocorr._FLOYD_MAX_K <= counts.max()
     ours = local_autocorrelation(values, graph, permutations=999, seed=12)
     rows = np.flatnonzero(counts > 0)[::6]
     ref = _brute_conditional_p(values, graph, rows, 999, np.random.default_rng(13))
@@ -207,10 +209,10 @@ def test_no_association_gives_no_discoveries():
     xy, values = _field(1500, 7, cluster=False)
     r = local_autocorrelation(values, build_graph(xy, k=8), permutations=999, seed=8, refine=True)
     # Folded one-sided p: under no association P(p <= 0.025) is about 0.05
-    # (2p is about uniform). The draws are shared between points (as in esda), so
-    # the share over points varies more than a binomial: loose bounds.
+    # (2p is about uniform); each point has its own draws, so the share over
+    # 1,500 points is about binomial (sd 0.006).
     share = np.mean(r.p_value <= 0.025)
-    assert 0.02 < share < 0.09
+    assert 0.03 < share < 0.075
     assert (r.p_adjusted > 0.05).all()  # Benjamini-Hochberg finds nothing in noise
 
 
@@ -243,3 +245,95 @@ def test_seeded_draws_repeat_and_nan_rows_are_left_out():
     assert not np.array_equal(a.p_value, c.p_value)
     assert np.isnan(a.moran_i[[5, 6]]).all() and (a.quadrant[[5, 6]] == 0).all()
     assert np.isfinite(a.moran_i[np.isfinite(values)]).all()
+
+
+# --- exact k-subsets, per-point streams -------------------------------------------------------
+
+
+def test_splitmix64_reference_outputs():
+    # Reference (from memory): SplitMix64 (Steele, Lea and Flood 2014) started at 0
+    # gives 0xE220A8397B1DCDAF, 0x6E789E6AA1B965F4, 0x06C45D188009454F (the values
+    # Java's SplittableRandom(0).nextLong() and the xoshiro authors' seeding code print).
+    assert [int(v) for v in splitmix64(np.uint64(0), 3)] == [0xE220A8397B1DCDAF, 0x6E789E6AA1B965F4, 0x06C45D188009454F]
+
+
+@pytest.mark.parametrize("k, population", [(3, 7), (5, 6), (24, 27), (26, 27)])
+def test_every_k_subset_is_equally_likely(k, population):
+    # both samplers (Floyd below _FLOYD_MAX_K = 24, partial Fisher-Yates from 24 on),
+    # k up to population - 1; every draw holds k distinct rows
+    draws = draw_subsets(np.uint64(12345), 60_000, k, population)
+    assert all(len(set(row)) == k for row in draws[:2000])
+    assert draws.min() >= 0 and draws.max() < population
+    _, counts = np.unique(np.sort(draws, axis=1), axis=0, return_counts=True)
+    from math import comb
+
+    assert counts.size == comb(population, k)  # every subset occurs
+    # Reference: scipy.stats.chisquare against equal frequencies for all C(population, k) subsets
+    assert stats.chisquare(counts).pvalue > 1e-3
+    # and each row appears in a share k / population of the draws
+    per_row = np.bincount(draws.ravel(), minlength=population) / draws.shape[0]
+    np.testing.assert_allclose(per_row, k / population, atol=0.01)
+
+
+@pytest.mark.parametrize("k", [1, 2, 23, 24, 30, 38, 39])
+def test_neighbour_counts_up_to_n_minus_1(k):
+    # issue 10 item 2: k-subsets were drawn by a rejection sampler that gave up
+    # ("could not draw distinct neighbour sets") when k^2 / 2n was large
+    n = 40
+    xy, values = _field(n, 21)
+    graph = build_graph(xy, k=k)
+    r = local_autocorrelation(values, graph, permutations=199, seed=2, keys=point_keys(xy, values))
+    assert np.isfinite(r.p_value).all() and (r.p_value > 0).all() and (r.p_value <= 1).all()
+    if k == n - 1:
+        # every other point is a neighbour: each draw is the whole population, so
+        # every permuted sum equals the observed one and p = (P + 1) / (P + 1)
+        np.testing.assert_array_equal(r.p_value, 1.0)
+
+
+def test_shuffled_rows_give_each_point_the_same_p_value():
+    # issue 13: draws come from a stream keyed by the seed and the point, indexing
+    # the values in sorted order, so the row order cannot change a p-value
+    xy, values = _field(900, 14)
+    values = np.round(values, 2)  # ties among values, as real levels have
+    xy[450:470] = xy[:20]  # coincident records (different values)
+    # ties at the k-th distance (the coincident records) broken by position and value
+    graph = build_graph(xy, k=8, tie_rank=canonical_rank(xy, values))
+    base = local_autocorrelation(values, graph, permutations=999, seed=3, keys=point_keys(xy, values))
+    order = np.random.default_rng(1).permutation(900)
+    graph_shuffled = build_graph(xy[order], k=8, tie_rank=canonical_rank(xy[order], values[order]))
+    assert all(set(order[a[a >= 0]]) == set(b[b >= 0]) for a, b in zip(graph_shuffled.indices, graph.indices[order]))
+    shuffled = local_autocorrelation(values[order], graph_shuffled, permutations=999, seed=3,
+                                     keys=point_keys(xy[order], values[order]))
+    np.testing.assert_array_equal(shuffled.p_value, base.p_value[order])
+    np.testing.assert_array_equal(shuffled.permutations, base.permutations[order])
+    np.testing.assert_allclose(shuffled.moran_i, base.moran_i[order], rtol=1e-12)
+    np.testing.assert_array_equal(shuffled.quadrant, base.quadrant[order])
+    assert (base.permutations > 999).any()  # the refined draws are covered too
+
+
+def test_threads_do_not_change_any_p_value(monkeypatch):
+    xy, values = _field(700, 15)
+    graph = build_graph(xy, k=8)
+    keys = point_keys(xy, values)
+    results = []
+    for threads in (1, 2, 3):
+        monkeypatch.setattr(autocorr, "_threads", lambda t=threads: t)
+        results.append(local_autocorrelation(values, graph, permutations=499, seed=4, keys=keys).p_value)
+    np.testing.assert_array_equal(results[0], results[1])
+    np.testing.assert_array_equal(results[0], results[2])
+
+
+def test_a_point_in_a_subset_of_the_layer_keeps_its_draws():
+    # the stream is the point's own: screening another set of points that has the
+    # same values (a partition with its halo, rows in another order) repeats it
+    xy, values = _field(500, 16)
+    graph = build_graph(xy, k=6)
+    keys = point_keys(xy, values)
+    full = local_autocorrelation(values, graph, permutations=299, seed=9, keys=keys)
+    # only points 0-49 are judged (the others keep their values but lose their
+    # neighbours): the judged points' p-values stay the same, bit for bit
+    indices = graph.indices.copy()
+    indices[50:] = -1
+    part = local_autocorrelation(values, type(graph)(indices, graph.distances, graph.kind, graph.max_distance),
+                                 permutations=299, seed=9, keys=keys)
+    np.testing.assert_array_equal(part.p_value[:50], full.p_value[:50])

@@ -7,7 +7,8 @@ from __future__ import annotations
 
 import hashlib
 
-
+import pyogrio
+import pytest
 from batch_data import synthetic_points, write_gpkg
 
 
@@ -30,3 +31,22 @@ def test_cli_plan_error_exit_2_and_direct_form(tmp_path, capsys):
     record = (tmp_path / "o" / "a.batch.json").read_text()
     assert '"permutations": 99' in record
     assert hashlib.sha256((tmp_path / "a.gpkg").read_bytes()).hexdigest() in record  # reference: hashlib
+
+
+@pytest.mark.parametrize("n, options", [(400, ["--within", "5km"]), (500, ["--neighbours", "100"]), (250, ["--neighbours", "50"])])
+def test_batch_with_many_neighbours_completes(tmp_path, capsys, n, options):
+    # issue 10 item 2: the k-subset sampler gave up ("could not draw distinct
+    # neighbour sets") for these options in batch as in screen
+    from pointsift.cli import main
+
+    data = tmp_path / "data"
+    data.mkdir()
+    write_gpkg(data / "net.gpkg", {"wells": synthetic_points(n, seed=3)})
+    code = main(["-q", "batch", str(data), "--value", "level_m", "--id", "well", "--permutations", "99",
+                 "--out-dir", str(tmp_path / "out"), *options])
+    err = capsys.readouterr().err
+    assert code == 0, err
+    assert "Internal error" not in err
+    layer = pyogrio.read_dataframe(tmp_path / "out" / "net.gpkg", layer="screened", read_geometry=False)
+    assert len(layer) == n and (layer["screen_status"] != "unscreened").sum() > 0.9 * n
+    assert layer["neighbour_count"].max() >= 40

@@ -469,3 +469,30 @@ def test_console_script_exit_codes_seen_by_a_shell(tmp_path, wells_gpkg):
     assert data.returncode == 1 and "Traceback" not in data.stderr + data.stdout
     assert "Error: " in data.stderr and "Numeric columns present: level_m, depth_m" in data.stderr
     assert not (tmp_path / "o.gpkg").exists()
+
+
+# --- many neighbours (issue 10 item 2) ---------------------------------------------------
+
+MANY_NEIGHBOURS = [(400, ["--within", "5km"]), (500, ["--neighbours", "100"]), (250, ["--neighbours", "50"])]
+
+
+@pytest.mark.parametrize("n, options", MANY_NEIGHBOURS)
+def test_many_neighbours_screen_and_describe_complete(tmp_path, capfd, n, options):
+    # issue 10 item 2: these ordinary options (the README's own --within 5km among them)
+    # ended in "RuntimeError: could not draw distinct neighbour sets; too few points for k"
+    source = write_points(build_wells(n, seed=41), tmp_path / "wells.gpkg")
+    before = fingerprint(source)
+    out = tmp_path / "out.gpkg"
+    code, text = run(["screen", source, "--value", "level_m", "--id", "well_id", "--out", out, *options], capfd)
+    assert code == 0, text
+    layer = pyogrio.read_dataframe(out, layer="screened", read_geometry=False)
+    assert len(layer) == n
+    judged = layer["screen_status"] != "unscreened"
+    assert judged.sum() > 0.9 * n
+    # the neighbour counts really are large (the automatic fence trims a few)
+    assert layer.loc[judged, "neighbour_count"].median() >= 40
+    p = layer.loc[judged, "local_moran_p"]
+    assert p.notna().all() and ((p > 0) & (p <= 1)).all()
+    code, text = run(["describe", source, "--value", "level_m", "--with-screen", *options], capfd)
+    assert code == 0, text
+    assert fingerprint(source) == before

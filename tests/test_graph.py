@@ -5,7 +5,7 @@ import pytest
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial.distance import cdist
 
-from pointsift.graph import BAND_CAP, NeighbourGraph, build_graph, coincident_groups
+from pointsift.graph import BAND_CAP, NeighbourGraph, build_graph, canonical_rank, coincident_groups
 
 
 def brute_neighbours(xy, *, k=None, within=None, max_distance=np.inf, groups=None, usable=None):
@@ -177,3 +177,24 @@ def test_sparse_and_libpysal_views_hold_the_same_neighbours():
     lp = g.to_libpysal()
     for i in range(30):
         assert sorted(np.asarray(lp[i].index)) == sorted(g.indices[i])
+
+
+def test_canonical_ties_give_the_same_neighbours_in_any_row_order():
+    # coincident records (not labelled as twins here) sit at equal distance from
+    # their neighbours; by row number the k-th neighbour depends on the row order,
+    # by canonical_rank (x, y, value) it does not. Reference: brute-force distances.
+    rng = np.random.default_rng(5)
+    xy = rng.uniform(0, 1000, (300, 2))
+    xy[150:200] = xy[:50]
+    values = rng.normal(size=300)
+    order = rng.permutation(300)
+    a = build_graph(xy, k=7, tie_rank=canonical_rank(xy, values))
+    b = build_graph(xy[order], k=7, tie_rank=canonical_rank(xy[order], values[order]))
+    for row in range(300):
+        assert set(order[b.indices[row]]) == set(a.indices[order[row]])
+    d = cdist(xy, xy)
+    np.fill_diagonal(d, np.inf)
+    np.testing.assert_allclose(a.distances, np.sort(d, axis=1)[:, :7])
+    # the plain row-number tie-break does change some neighbour sets here
+    plain_a, plain_b = build_graph(xy, k=7), build_graph(xy[order], k=7)
+    assert any(set(order[plain_b.indices[r]]) != set(plain_a.indices[order[r]]) for r in range(300))

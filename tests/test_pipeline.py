@@ -258,3 +258,20 @@ def test_text_columns_are_null_where_there_is_nothing_to_say():
     assert out.loc[5, "screen_status"] == "unscreened"
     assert pd.isna(out.loc[5, "local_moran_quadrant"]) and pd.isna(out.loc[5, "coincident_role"])  # written as NULL
     assert not (out["local_moran_quadrant"] == "").any() and not (out["coincident_role"] == "").any()
+
+
+def test_shuffled_rows_give_each_well_the_same_p_value_and_status():
+    # issue 13: a point's permutation p-value depends on the run seed and the point,
+    # not on the row order (per-point streams, canonical tie-breaks in the graph)
+    wells = build_wells(500, seed=31)
+    twins = wells.iloc[:15].copy()
+    twins["well_id"] = [f"D{i}" for i in range(15)]
+    twins["level_m"] = twins["level_m"] + 0.05  # records at the same spot that differ a little
+    wells = pd.concat([wells, twins], ignore_index=True)
+    base = screen(wells, value="level_m", id="well_id", permutations=999).set_index("well_id")
+    order = np.random.default_rng(2).permutation(len(wells))
+    shuffled = screen(wells.iloc[order].reset_index(drop=True), value="level_m", id="well_id", permutations=999)
+    shuffled = shuffled.set_index("well_id").loc[base.index]
+    np.testing.assert_array_equal(shuffled["local_moran_p"].to_numpy(), base["local_moran_p"].to_numpy())
+    assert (shuffled["screen_status"] == base["screen_status"]).all()
+    np.testing.assert_allclose(shuffled["local_moran_i"], base["local_moran_i"], rtol=1e-9, atol=1e-12)

@@ -3,7 +3,10 @@
 The graph is stored as padded arrays (one row per point, ``-1`` where a row
 has fewer neighbours), which keeps every method vectorised. Neighbours are
 ordered by distance, then by row number, so ties and coincident points are
-resolved the same way on every run. A point is never its own neighbour, and
+resolved the same way on every run; with ``tie_rank`` from
+:func:`canonical_rank` (as the screen does) ties are broken by position and
+value instead of row number, so the row order of the input cannot change a
+neighbour set. A point is never its own neighbour, and
 neither are its coincident twins (records within ``coincident_tolerance``):
 those are judged separately (:mod:`pointsift.methods.coincident`). Self is
 excluded by row id, never by dropping "the first neighbour".
@@ -16,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.spatial import cKDTree
 
-__all__ = ["NeighbourGraph", "build_graph", "coincident_groups", "BAND_CAP"]
+__all__ = ["NeighbourGraph", "build_graph", "canonical_rank", "coincident_groups", "BAND_CAP"]
 
 #: A distance band keeps at most this many nearest neighbours per point.
 BAND_CAP = 64
@@ -138,14 +141,31 @@ def coincident_groups(xy: np.ndarray, tolerance: float) -> np.ndarray:
     return labels
 
 
-def _sorted_query(tree: cKDTree, xy: np.ndarray, width: int, workers: int):
+def canonical_rank(xy: np.ndarray, values: np.ndarray | None = None) -> np.ndarray:
+    """Rank of each point by x, then y, then value (then row): a tie-break for
+    equal distances that does not depend on the row order.
+
+    Examples
+    --------
+    >>> canonical_rank(np.array([[1.0, 0.0], [0.0, 5.0], [0.0, 2.0]])).tolist()
+    [2, 1, 0]
+    """
+    xy = np.asarray(xy, dtype=float)
+    keys = (xy[:, 1], xy[:, 0]) if values is None else (np.asarray(values, dtype=float), xy[:, 1], xy[:, 0])
+    order = np.lexsort(keys)
+    rank = np.empty(order.size, dtype=np.int64)
+    rank[order] = np.arange(order.size)
+    return rank
+
+
+def _sorted_query(tree: cKDTree, xy: np.ndarray, width: int, workers: int, tie_rank: np.ndarray):
     distances, indices = tree.query(xy, k=width, workers=workers)
     if width == 1:
         distances, indices = distances[:, None], indices[:, None]
     missing = indices >= tree.n
     indices = np.where(missing, -1, indices).astype(np.int64)
-    # order by distance, then row number; padding last
-    row_key = np.where(missing, np.iinfo(np.int64).max, indices)
+    # order by distance, then tie rank; padding last
+    row_key = np.where(missing, np.iinfo(np.int64).max, tie_rank[np.where(missing, 0, indices)])
     order = np.lexsort((row_key, distances), axis=1)
     return np.take_along_axis(distances, order, axis=1), np.take_along_axis(indices, order, axis=1)
 
@@ -160,6 +180,7 @@ def build_graph(
     coincident: np.ndarray | None = None,
     usable: np.ndarray | None = None,
     workers: int = -1,
+    tie_rank: np.ndarray | None = None,
 ) -> NeighbourGraph:
     """Build the neighbour graph.
 
@@ -182,6 +203,9 @@ def build_graph(
         Only usable points can be neighbours (rows of unusable points are empty).
     workers : int
         Threads for the k-d tree query (``-1``: all cores).
+    tie_rank : ndarray of int, optional
+        Order among neighbours at equal distance (default: row number);
+        :func:`canonical_rank` makes it independent of the row order.
 
     Returns
     -------
@@ -214,9 +238,10 @@ def build_graph(
     extra = int(group_sizes.max()) + 2  # twins to skip, plus margin for ties at the cut
     query_width = min(m, width + extra)
     tree = cKDTree(xy[rows])
+    local_rank = rows if tie_rank is None else np.asarray(tie_rank, dtype=np.int64)[rows]
     todo = rows
     while todo.size:
-        d, j = _sorted_query(tree, xy[todo], query_width, workers)
+        d, j = _sorted_query(tree, xy[todo], query_width, workers, local_rank)
         j_global = np.where(j >= 0, rows[np.where(j >= 0, j, 0)], -1)
         own = todo[:, None]
         own_group = coincident[todo][:, None]

@@ -17,9 +17,9 @@ import pandas as pd
 
 from .config import ScreenConfig, spell
 from .errors import InputError
-from .graph import NeighbourGraph, build_graph
+from .graph import NeighbourGraph, build_graph, canonical_rank
 from .io import SourceInfo
-from .methods.autocorr import LocalAutocorrelation, local_autocorrelation
+from .methods.autocorr import LocalAutocorrelation, local_autocorrelation, point_keys
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
 from .methods.repairs import likely_slips
@@ -279,6 +279,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         max_distance=max_distance,
         coincident=prepared.coincident,
         usable=prepared.usable,
+        tie_rank=canonical_rank(prepared.xy, prepared.values),
     )
     timings["graph_s"] = time.perf_counter() - t
 
@@ -310,7 +311,8 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     t = time.perf_counter()
     judged = prepared.usable & ~too_few
     autocorr = local_autocorrelation(
-        np.where(judged, detrended, np.nan), graph, permutations=config.permutations, seed=config.seed
+        np.where(judged, detrended, np.nan), graph, permutations=config.permutations, seed=config.seed,
+        keys=point_keys(prepared.xy, prepared.values),
     )
     timings["local_autocorrelation_s"] = time.perf_counter() - t
 
