@@ -34,10 +34,18 @@ an install compiles it) and runs over points in parallel threads.
 Benjamini-Hochberg needs p-values below ``alpha / m`` for the smallest; with
 999 permutations the floor is 0.001, so over a thousand points nothing could
 ever be rejected. pointsift therefore uses more permutations for the points
-at the floor: every point whose count of more extreme draws is zero after the
-first ``P`` draws goes on drawing from its own stream up to
-``100 (P + 1) - 1`` draws (floor about 1 / (100 (P + 1)), 1e-5 by default).
-The run record says how many points got them.
+at the floor: every point whose count of more extreme draws is zero after its
+own first ``P`` draws is judged on ``100 (P + 1) - 1`` draws in all. The
+extra draws are shared by the floor points with the same neighbour count (in
+a smooth field a large share of the points sit at the floor, and 99,000 own
+draws each would cost minutes at a million points): ``100 (P + 1) - 1 - P``
+k-subsets of the sorted-value slots are drawn once per k, from a stream keyed
+by the seed, k and n, their sums sorted, and each point's counts read off by
+binary search, leaving out the draws that hold its own slot (so each point's
+reference is still a uniform sample of k-subsets of the *other* values).
+They too depend on nothing but the seed and the multiset of values, so row
+order and partitions cannot change them. The run record says how many points
+got them.
 """
 
 from __future__ import annotations
@@ -63,7 +71,7 @@ __all__ = [
 
 
 #: How the permutations are drawn (the run record's ``kernel``).
-KERNEL = "per-point streams (SplitMix64 keyed by seed and point; exact k-subsets)"
+KERNEL = "per-point streams (SplitMix64 keyed by seed and point; exact k-subsets); floor extension shared per k"
 
 #: Below this many neighbours a draw uses Floyd's algorithm (read-only); from it
 #: on, a partial Fisher-Yates shuffle of a per-thread copy of the values.
@@ -234,14 +242,13 @@ def draw_subsets(key, draws, k, population):
 
 
 @numba.njit(cache=True, nogil=True)
-def _permutation_counts(z_sorted, self_pos, observed, k_rows, keys, permutations, extended, tolerance,
+def _permutation_counts(z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance,
                         first, stride, ge, le, done):
     """Counts of permuted neighbour sums >= / <= the observed one, per row.
 
     Row r keeps its value (at ``self_pos[r]`` of ``z_sorted``); each draw is a
     uniform ``k_rows[r]``-subset of the other values, from the stream at
-    ``keys[r]``. Rows at the floor after ``permutations`` draws go on to
-    ``extended`` draws. This call does rows ``first, first + stride, ...``
+    ``keys[r]``. This call does rows ``first, first + stride, ...``
     (threads take interleaved rows, so they share the slow, refined rows
     evenly) and writes ``ge``, ``le`` and ``done``; no row's counts depend on
     any other row.
@@ -314,8 +321,6 @@ def _permutation_counts(z_sorted, self_pos, observed, k_rows, keys, permutations
                 if total <= obs + tolerance:
                     l += 1
                 d += 1
-            if d == target and target < extended and min(g, l) == 0:
-                target = extended
         if k >= _FLOYD_MAX_K:
             v = scratch[pos]
             scratch[pos] = scratch[n - 1]
@@ -372,6 +377,57 @@ def _stream_keys(keys: np.ndarray, seed: int) -> np.ndarray:
     return _hash_points(keys, np.full(keys.size, salt, dtype=np.uint64), np.zeros(keys.size, dtype=np.uint64))
 
 
+@numba.njit(cache=True)
+def _exclusions(hit_pos, hit_sum, row_pos, row_obs, tolerance):
+    """Per row: how many of the draws holding its own slot (``hit_pos`` sorted)
+    have sums >= / <= its observed sum, and how many there are."""
+    m = row_pos.size
+    ge = np.zeros(m, dtype=np.int64)
+    le = np.zeros(m, dtype=np.int64)
+    count = np.zeros(m, dtype=np.int64)
+    for r in range(m):
+        lo = np.searchsorted(hit_pos, row_pos[r], side="left")
+        hi = np.searchsorted(hit_pos, row_pos[r], side="right")
+        for h in range(lo, hi):
+            if hit_sum[h] >= row_obs[r] - tolerance:
+                ge[r] += 1
+            if hit_sum[h] <= row_obs[r] + tolerance:
+                le[r] += 1
+        count[r] = hi - lo
+    return ge, le, count
+
+
+def _refine_at_floor(z_sorted, self_pos, observed, k_rows, extra, seed, tolerance):
+    """``extra`` more draws for the rows at the floor, shared by the rows with
+    one neighbour count (see the module notes).
+
+    The draws are k-subsets of the slots of ``z_sorted`` from a stream keyed
+    by the seed, k and n (so the same in any row order or partition); for
+    each row, the draws holding its own slot are left out, so what remains
+    is a uniform sample of k-subsets of the other values.
+    """
+    n = z_sorted.size
+    ge, le, valid = (np.zeros(observed.size, dtype=np.int64) for _ in range(3))
+    salt = splitmix64(np.uint64(int(seed) % (1 << 64)), 2)[1]
+    for k in np.unique(k_rows):
+        group = np.flatnonzero(k_rows == k)
+        key = _hash_points(np.array([salt]), np.array([k], dtype=np.uint64), np.array([n], dtype=np.uint64))[0]
+        subsets = draw_subsets(key, extra, int(k), n)
+        sums = z_sorted[subsets].sum(axis=1)
+        ordered = np.sort(sums)
+        obs = observed[group]
+        g = extra - np.searchsorted(ordered, obs - tolerance, side="left")
+        l = np.searchsorted(ordered, obs + tolerance, side="right")
+        wanted = np.zeros(n, dtype=bool)
+        wanted[self_pos[group]] = True
+        hit = np.flatnonzero(wanted[subsets.ravel()])
+        hit_pos = subsets.ravel()[hit]
+        order = np.argsort(hit_pos, kind="stable")
+        out_g, out_l, out_n = _exclusions(hit_pos[order], sums[hit // k][order], self_pos[group], obs, tolerance)
+        ge[group], le[group], valid[group] = g - out_g, l - out_l, extra - out_n
+    return ge, le, valid
+
+
 def _threads() -> int:
     try:
         return max(1, len(os.sched_getaffinity(0)))
@@ -379,12 +435,12 @@ def _threads() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _run_kernel(z_sorted, self_pos, observed, k_rows, keys, permutations, extended, tolerance):
+def _run_kernel(z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance):
     """The permutation kernel over all rows, on every core (threads; it releases the GIL)."""
     m = observed.size
     ge, le, done = (np.zeros(m, dtype=np.int64) for _ in range(3))
     stride = max(1, min(m, _threads()))
-    args = (z_sorted, self_pos, observed, k_rows, keys, permutations, extended, tolerance)
+    args = (z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance)
     if stride == 1:
         _permutation_counts(*args, 0, 1, ge, le, done)
         return ge, le, done
@@ -475,10 +531,17 @@ def local_autocorrelation(
         identity = np.asarray(keys, dtype=np.uint64)[used][rows]
     extended = 100 * (permutations + 1) - 1 if refine else permutations
     tolerance = 1e-12 * max(1.0, float(np.abs(z_sorted[[0, -1]]).max()))
-    ge, le, draws = _run_kernel(
-        z_sorted, np.searchsorted(z_sorted, z[rows], side="left"), lag_sum[rows], k_rows[rows].astype(np.int64),
-        _stream_keys(identity, seed), int(permutations), int(extended), tolerance,
-    )
+    self_pos = np.searchsorted(z_sorted, z[rows], side="left")
+    observed, k_used = lag_sum[rows], k_rows[rows].astype(np.int64)
+    ge, le, draws = _run_kernel(z_sorted, self_pos, observed, k_used, _stream_keys(identity, seed), int(permutations), tolerance)
+    floor = np.minimum(ge, le) == 0
+    if extended > permutations and floor.any():
+        more_ge, more_le, more = _refine_at_floor(
+            z_sorted, self_pos[floor], observed[floor], k_used[floor], extended - permutations, seed, tolerance
+        )
+        ge[floor] += more_ge
+        le[floor] += more_le
+        draws[floor] += more
     p = (np.minimum(ge, le) + 1.0) / (draws + 1.0)
 
     target = np.flatnonzero(used)[rows]
