@@ -184,7 +184,10 @@ def test_per_point_draws_agree_with_plain_conditional_permutation():
     rows = np.arange(0, 400, 5)
     ref = _brute_conditional_p(values, graph, rows, 999, np.random.default_rng(6))
     assert stats.pearsonr(ours.p_value[rows], ref)[0] > 0.97
-    assert np.abs(ours.p_value[rows] - ref).max() < 0.06
+    # two independent 999-draw estimates differ with sd <= sqrt(2 * 0.25 / 1000) = 0.022:
+    # the largest of 80 differences stays within 4 sd, their mean within 0.015
+    assert np.abs(ours.p_value[rows] - ref).max() < 0.09
+    assert np.abs(ours.p_value[rows] - ref).mean() < 0.015
     # each point draws exactly P subsets of the other n - 1 values
     assert (ours.permutations == 999).all()
 

@@ -15,36 +15,44 @@ statistics are increasing functions of the sum of the neighbours' values, so
 one set of draws of that sum serves both; the p-value is esda's folded
 one-sided ``(min(#>=, #<=) + 1) / (P + 1)``.
 
-Each point's draws are its own, and depend on nothing but the run seed, the
-point itself and the multiset of values: they come from a stream keyed by
-the seed and the point's identity (its work-CRS coordinates and its value,
-see :func:`point_keys`), and index the values in sorted order (a canonical
-order, whatever the row order). So shuffling the rows, or splitting the work
-over threads, processes or partitions, cannot change any point's p-value.
-The stream is SplitMix64 (Steele, Lea and Flood 2014, "Fast splittable
-pseudorandom number generators", OOPSLA) started at the point's key; bounded
-integers are drawn exactly by Lemire's (2019) multiply-and-reject method.
-Each draw is an exact uniform k-subset of the other n - 1 values, never a
-retry that may give up: Floyd's algorithm (Bentley and Floyd 1987, "A sample
-of brilliance", CACM 30) for small k, and a partial Fisher-Yates shuffle
-(Durstenfeld 1964) undone after each draw for large k; any k up to n - 1.
-The kernel is compiled by numba (cached on disk, so only the first run after
-an install compiles it) and runs over points in parallel threads.
+The draws depend on nothing but the run seed, the point itself and the
+multiset of values, so shuffling the rows, or splitting the work over
+threads, processes or partitions, cannot change any point's p-value:
+
+* Candidates. For each neighbour count k, ``D = 100 (P + 1) - 1`` exact
+  uniform k-subsets of the n slots of the values *in sorted order* (a
+  canonical order, whatever the row order) are drawn once, from a stream
+  keyed by the seed, k and n: Floyd's algorithm (Bentley and Floyd 1987, "A
+  sample of brilliance", CACM 30) below 24 neighbours, a partial Fisher-Yates
+  shuffle (Durstenfeld 1964) undone after each draw from 24 on; any k up to
+  n - 1, never a retry that may give up. Their sums are computed once.
+* Each point's own draws. A point picks its ``P`` draws uniformly, with
+  replacement, among the candidates that do not hold its own slot, from its
+  own stream, keyed by the seed and the point's identity (its work-CRS
+  coordinates and its value as read, :func:`point_keys`). Each pick is thus
+  a uniform k-subset of the *other* n - 1 values: the conditional
+  permutation distribution. Picking among ``D`` candidates instead of
+  drawing k fresh values costs one lookup instead of k random reads of the
+  whole value array (ten times faster at a million points); the candidates
+  add a variance of ``p (1 - p) / D``, a hundredth of that of the ``P``
+  draws themselves.
+* The stream is SplitMix64 (Steele, Lea and Flood 2014, "Fast splittable
+  pseudorandom number generators", OOPSLA); bounded integers are drawn
+  exactly by Lemire's (2019) multiply-and-reject method. The kernels are
+  compiled by numba (cached on disk: only the first run after an install
+  compiles them, about 5 s of one core) and the picks run on every core.
+* A point that no candidate can serve (k = n - 1 and every candidate holds
+  its slot: possible only for tiny layers) draws its ``P`` k-subsets
+  directly from its own stream.
 
 Benjamini-Hochberg needs p-values below ``alpha / m`` for the smallest; with
 999 permutations the floor is 0.001, so over a thousand points nothing could
 ever be rejected. pointsift therefore uses more permutations for the points
 at the floor: every point whose count of more extreme draws is zero after its
-own first ``P`` draws is judged on ``100 (P + 1) - 1`` draws in all. The
-extra draws are shared by the floor points with the same neighbour count (in
-a smooth field a large share of the points sit at the floor, and 99,000 own
-draws each would cost minutes at a million points): ``100 (P + 1) - 1 - P``
-k-subsets of the sorted-value slots are drawn once per k, from a stream keyed
-by the seed, k and n, their sums sorted, and each point's counts read off by
-binary search, leaving out the draws that hold its own slot (so each point's
-reference is still a uniform sample of k-subsets of the *other* values).
-They too depend on nothing but the seed and the multiset of values, so row
-order and partitions cannot change them. The run record says how many points
+own ``P`` draws is judged on every candidate that does not hold its slot
+(about ``100 (P + 1) - 1``; floor about 1e-5 by default): the candidates'
+sums are sorted once and each such point's counts read off by binary search,
+less the candidates holding its slot. The run record says how many points
 got them.
 """
 
@@ -71,13 +79,11 @@ __all__ = [
 
 
 #: How the permutations are drawn (the run record's ``kernel``).
-KERNEL = "per-point streams (SplitMix64 keyed by seed and point; exact k-subsets); floor extension shared per k"
+KERNEL = "per-point streams (SplitMix64 keyed by seed and point) picking among exact k-subset candidates per k"
 
 #: Below this many neighbours a draw uses Floyd's algorithm (read-only); from it
 #: on, a partial Fisher-Yates shuffle of a per-thread copy of the values.
 _FLOYD_MAX_K = 24
-#: Draws whose indices are made before their values are read (Floyd path).
-_BATCH = 16
 
 
 @dataclass(frozen=True)
@@ -241,95 +247,6 @@ def draw_subsets(key, draws, k, population):
     return out
 
 
-@numba.njit(cache=True, nogil=True)
-def _permutation_counts(z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance,
-                        first, stride, ge, le, done):
-    """Counts of permuted neighbour sums >= / <= the observed one, per row.
-
-    Row r keeps its value (at ``self_pos[r]`` of ``z_sorted``); each draw is a
-    uniform ``k_rows[r]``-subset of the other values, from the stream at
-    ``keys[r]``. This call does rows ``first, first + stride, ...``
-    (threads take interleaved rows, so they share the slow, refined rows
-    evenly) and writes ``ge``, ``le`` and ``done``; no row's counts depend on
-    any other row.
-    """
-    m = observed.size
-    n = z_sorted.size
-    population = n - 1
-    big_k = k_rows.max() if m else 0
-    picks = np.empty(_BATCH * _FLOYD_MAX_K, dtype=np.int64)
-    swaps = np.empty(max(big_k, 1), dtype=np.int64)
-    scratch = z_sorted.copy() if big_k >= _FLOYD_MAX_K else z_sorted[:1].copy()
-    for r in range(first, m, stride):
-        k = k_rows[r]
-        pos = self_pos[r]
-        obs = observed[r]
-        state, spare = keys[r], _EMPTY
-        g = 0
-        l = 0
-        d = 0
-        target = permutations
-        if k >= _FLOYD_MAX_K:
-            # population = scratch[:n-1]: the point's own value moved to the end
-            v = scratch[pos]
-            scratch[pos] = scratch[n - 1]
-            scratch[n - 1] = v
-        while d < target:
-            if k < _FLOYD_MAX_K:
-                # a batch of draws' indices first, then their values: the
-                # loads are independent and overlap (the values are large
-                # enough at a million points to miss the caches)
-                batch = min(_BATCH, target - d)
-                for b in range(batch):
-                    base = b * k
-                    for c2 in range(k):
-                        j = population - k + c2
-                        t, state, spare = _below(state, spare, j + 1)
-                        for q in range(base, base + c2):
-                            if picks[q] == t:
-                                t = j
-                                break
-                        picks[base + c2] = t
-                for b in range(batch):
-                    base = b * k
-                    total = 0.0
-                    for c2 in range(k):
-                        t = picks[base + c2]
-                        total += z_sorted[t if t < pos else t + 1]
-                    if total >= obs - tolerance:
-                        g += 1
-                    if total <= obs + tolerance:
-                        l += 1
-                d += batch
-            else:
-                total = 0.0
-                for t in range(k):
-                    j, state, spare = _below(state, spare, population - t)
-                    j += t
-                    v = scratch[j]
-                    scratch[j] = scratch[t]
-                    scratch[t] = v
-                    swaps[t] = j
-                    total += v
-                for t in range(k - 1, -1, -1):
-                    j = swaps[t]
-                    v = scratch[j]
-                    scratch[j] = scratch[t]
-                    scratch[t] = v
-                if total >= obs - tolerance:
-                    g += 1
-                if total <= obs + tolerance:
-                    l += 1
-                d += 1
-        if k >= _FLOYD_MAX_K:
-            v = scratch[pos]
-            scratch[pos] = scratch[n - 1]
-            scratch[n - 1] = v
-        ge[r] = g
-        le[r] = l
-        done[r] = d
-
-
 @numba.njit(cache=True)
 def _hash_points(x_bits, y_bits, v_bits):
     out = np.empty(x_bits.size, dtype=np.uint64)
@@ -377,55 +294,88 @@ def _stream_keys(keys: np.ndarray, seed: int) -> np.ndarray:
     return _hash_points(keys, np.full(keys.size, salt, dtype=np.uint64), np.zeros(keys.size, dtype=np.uint64))
 
 
+def _pool(seed: int, k: int, n: int, size: int):
+    """The candidate draws for neighbour count ``k``: ``size`` exact k-subsets of the
+    ``n`` sorted-value slots from a stream keyed by the seed, k and n, and for
+    each slot the (sorted) candidates that hold it, as CSR arrays."""
+    salt = splitmix64(np.uint64(int(seed) % (1 << 64)), 2)[1]
+    key = _hash_points(np.array([salt]), np.array([k], dtype=np.uint64), np.array([n], dtype=np.uint64))[0]
+    subsets = draw_subsets(key, size, int(k), n)
+    flat = subsets.ravel()
+    by_slot = np.argsort(flat, kind="stable")  # candidates in ascending order within a slot
+    holders = (by_slot // k).astype(np.int64)
+    slot_start = np.searchsorted(flat[by_slot], np.arange(n + 1))
+    # holders[j] - (its rank within its slot): how many valid candidates lie before it
+    rank = np.arange(holders.size) - np.repeat(slot_start[:-1], np.diff(slot_start))
+    return subsets, holders, holders - rank, slot_start
+
+
+@numba.njit(cache=True, nogil=True)
+def _pick_counts(sums, before, slot_start, self_pos, observed, keys, permutations, tolerance,
+                 first, stride, ge, le, done):
+    """Rows ``first, first + stride, ...``: ``permutations`` candidates picked
+    uniformly (with replacement) from the stream at ``keys[r]`` among the
+    candidates that do not hold the row's own slot; counts of sums >= / <= the
+    observed. A row with no valid candidate gets ``done = -1``."""
+    size = sums.size
+    for r in range(first, observed.size, stride):
+        lo = slot_start[self_pos[r]]
+        hi = slot_start[self_pos[r] + 1]
+        valid = size - (hi - lo)
+        if valid <= 0:
+            done[r] = -1
+            continue
+        state, spare = keys[r], _EMPTY
+        obs = observed[r]
+        g = 0
+        l = 0
+        for _ in range(permutations):
+            u, state, spare = _below(state, spare, valid)
+            # the u-th valid candidate: u plus the holders that come before it
+            skip = 0
+            if hi > lo:
+                skip = np.searchsorted(before[lo:hi], u, side="right")
+            total = sums[u + skip]
+            if total >= obs - tolerance:
+                g += 1
+            if total <= obs + tolerance:
+                l += 1
+        ge[r] = g
+        le[r] = l
+        done[r] = permutations
+
+
 @numba.njit(cache=True)
-def _exclusions(hit_pos, hit_sum, row_pos, row_obs, tolerance):
-    """Per row: how many of the draws holding its own slot (``hit_pos`` sorted)
-    have sums >= / <= its observed sum, and how many there are."""
-    m = row_pos.size
+def _pool_counts(ordered, sums, holders, slot_start, self_pos, observed, tolerance):
+    """Counts over every valid candidate (for rows at the floor)."""
+    m = observed.size
     ge = np.zeros(m, dtype=np.int64)
     le = np.zeros(m, dtype=np.int64)
-    count = np.zeros(m, dtype=np.int64)
+    done = np.zeros(m, dtype=np.int64)
+    size = sums.size
     for r in range(m):
-        lo = np.searchsorted(hit_pos, row_pos[r], side="left")
-        hi = np.searchsorted(hit_pos, row_pos[r], side="right")
-        for h in range(lo, hi):
-            if hit_sum[h] >= row_obs[r] - tolerance:
-                ge[r] += 1
-            if hit_sum[h] <= row_obs[r] + tolerance:
-                le[r] += 1
-        count[r] = hi - lo
-    return ge, le, count
-
-
-def _refine_at_floor(z_sorted, self_pos, observed, k_rows, extra, seed, tolerance):
-    """``extra`` more draws for the rows at the floor, shared by the rows with
-    one neighbour count (see the module notes).
-
-    The draws are k-subsets of the slots of ``z_sorted`` from a stream keyed
-    by the seed, k and n (so the same in any row order or partition); for
-    each row, the draws holding its own slot are left out, so what remains
-    is a uniform sample of k-subsets of the other values.
-    """
-    n = z_sorted.size
-    ge, le, valid = (np.zeros(observed.size, dtype=np.int64) for _ in range(3))
-    salt = splitmix64(np.uint64(int(seed) % (1 << 64)), 2)[1]
-    for k in np.unique(k_rows):
-        group = np.flatnonzero(k_rows == k)
-        key = _hash_points(np.array([salt]), np.array([k], dtype=np.uint64), np.array([n], dtype=np.uint64))[0]
-        subsets = draw_subsets(key, extra, int(k), n)
-        sums = z_sorted[subsets].sum(axis=1)
-        ordered = np.sort(sums)
-        obs = observed[group]
-        g = extra - np.searchsorted(ordered, obs - tolerance, side="left")
+        obs = observed[r]
+        g = size - np.searchsorted(ordered, obs - tolerance, side="left")
         l = np.searchsorted(ordered, obs + tolerance, side="right")
-        wanted = np.zeros(n, dtype=bool)
-        wanted[self_pos[group]] = True
-        hit = np.flatnonzero(wanted[subsets.ravel()])
-        hit_pos = subsets.ravel()[hit]
-        order = np.argsort(hit_pos, kind="stable")
-        out_g, out_l, out_n = _exclusions(hit_pos[order], sums[hit // k][order], self_pos[group], obs, tolerance)
-        ge[group], le[group], valid[group] = g - out_g, l - out_l, extra - out_n
-    return ge, le, valid
+        lo = slot_start[self_pos[r]]
+        hi = slot_start[self_pos[r] + 1]
+        for h in range(lo, hi):
+            s = sums[holders[h]]
+            if s >= obs - tolerance:
+                g -= 1
+            if s <= obs + tolerance:
+                l -= 1
+        ge[r] = g
+        le[r] = l
+        done[r] = size - (hi - lo)
+    return ge, le, done
+
+
+def _own_draws(z_sorted, pos, obs, k, key, permutations, tolerance):
+    """Exact draws from the point's own stream (a row that no candidate can serve)."""
+    picks = draw_subsets(key, permutations, int(k), z_sorted.size - 1)
+    sums = z_sorted[picks + (picks >= pos)].sum(axis=1)
+    return int((sums >= obs - tolerance).sum()), int((sums <= obs + tolerance).sum()), permutations
 
 
 def _threads() -> int:
@@ -435,19 +385,41 @@ def _threads() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _run_kernel(z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance):
-    """The permutation kernel over all rows, on every core (threads; it releases the GIL)."""
+def _run_picks(sums, before, slot_start, self_pos, observed, keys, permutations, tolerance):
+    """:func:`_pick_counts` over all rows, on every core (threads; it releases the GIL)."""
     m = observed.size
     ge, le, done = (np.zeros(m, dtype=np.int64) for _ in range(3))
     stride = max(1, min(m, _threads()))
-    args = (z_sorted, self_pos, observed, k_rows, keys, permutations, tolerance)
+    args = (sums, before, slot_start, self_pos, observed, keys, permutations, tolerance)
     if stride == 1:
-        _permutation_counts(*args, 0, 1, ge, le, done)
+        _pick_counts(*args, 0, 1, ge, le, done)
         return ge, le, done
     with ThreadPoolExecutor(stride) as pool:
-        jobs = [pool.submit(_permutation_counts, *args, first, stride, ge, le, done) for first in range(stride)]
+        jobs = [pool.submit(_pick_counts, *args, first, stride, ge, le, done) for first in range(stride)]
         for job in jobs:
             job.result()
+    return ge, le, done
+
+
+def _conditional_counts(z_sorted, self_pos, observed, k_rows, keys, permutations, extended, seed, tolerance):
+    """Counts of permuted sums >= / <= the observed and the draws behind them, per row."""
+    m = observed.size
+    ge, le, done = (np.zeros(m, dtype=np.int64) for _ in range(3))
+    n = z_sorted.size
+    for k in np.unique(k_rows):
+        group = np.flatnonzero(k_rows == k)
+        subsets, holders, before, slot_start = _pool(seed, int(k), n, 100 * (permutations + 1) - 1)
+        sums = z_sorted[subsets].sum(axis=1)
+        del subsets
+        pos, obs = self_pos[group], observed[group]
+        g, l, d = _run_picks(sums, before, slot_start, pos, obs, keys[group], int(permutations), tolerance)
+        floor = (d > 0) & (np.minimum(g, l) == 0)
+        if extended > permutations and floor.any():  # judged on every candidate
+            fg, fl, fd = _pool_counts(np.sort(sums), sums, holders, slot_start, pos[floor], obs[floor], tolerance)
+            g[floor], l[floor], d[floor] = fg, fl, fd
+        for i in np.flatnonzero(d < 0):
+            g[i], l[i], d[i] = _own_draws(z_sorted, pos[i], obs[i], k, keys[group][i], int(permutations), tolerance)
+        ge[group], le[group], done[group] = g, l, d
     return ge, le, done
 
 
@@ -531,17 +503,10 @@ def local_autocorrelation(
         identity = np.asarray(keys, dtype=np.uint64)[used][rows]
     extended = 100 * (permutations + 1) - 1 if refine else permutations
     tolerance = 1e-12 * max(1.0, float(np.abs(z_sorted[[0, -1]]).max()))
-    self_pos = np.searchsorted(z_sorted, z[rows], side="left")
-    observed, k_used = lag_sum[rows], k_rows[rows].astype(np.int64)
-    ge, le, draws = _run_kernel(z_sorted, self_pos, observed, k_used, _stream_keys(identity, seed), int(permutations), tolerance)
-    floor = np.minimum(ge, le) == 0
-    if extended > permutations and floor.any():
-        more_ge, more_le, more = _refine_at_floor(
-            z_sorted, self_pos[floor], observed[floor], k_used[floor], extended - permutations, seed, tolerance
-        )
-        ge[floor] += more_ge
-        le[floor] += more_le
-        draws[floor] += more
+    ge, le, draws = _conditional_counts(
+        z_sorted, np.searchsorted(z_sorted, z[rows], side="left"), lag_sum[rows], k_rows[rows].astype(np.int64),
+        _stream_keys(identity, seed), int(permutations), int(extended), seed, tolerance,
+    )
     p = (np.minimum(ge, le) + 1.0) / (draws + 1.0)
 
     target = np.flatnonzero(used)[rows]
