@@ -170,3 +170,24 @@ def test_entry_mistake_that_fits_raises_review_to_suspect():
 )
 def test_format_length(metres, text):
     assert format_length(metres) == text
+
+
+def test_quiet_sentences_equal_the_three_column_factorization():
+    # the sentences of rows within the review threshold are built once per distinct
+    # (z in tenths, neighbour count, distance); reference: pandas' factorization of
+    # that three-column key, the earlier formulation, on varied rows
+    rng = np.random.default_rng(8)
+    n = 5000
+    z = rng.normal(0, 1.2, n)
+    z = np.where(np.abs(z) < 3.4, z, 0.1)
+    counts = rng.integers(4, 65, n)
+    local = make_local(z, neighbour_count=counts)
+    distance = rng.choice([120.0, 480.0, 1234.0, 5100.0, 23000.0], n)
+    out = decide(ids=np.array([f"W{i}" for i in range(n)], dtype=object), values=local.expected + 0.5 * z,
+                 unscreened_reason=np.full(n, "", dtype=object), local=local, max_neighbour_distance=distance,
+                 autocorr=None, coincident=no_coincident(n), config=CONFIG)
+    key = pd.DataFrame({"z": np.round(np.abs(z), 1), "k": counts, "d": distance})
+    codes, uniques = pd.MultiIndex.from_frame(key).factorize()
+    expected = np.array([f"within {t:.1f} robust sd of the value expected from {k} neighbours within {format_length(d)}"
+                         for t, k, d in uniques], dtype=object)[codes]
+    assert (out["screen_reasons"].to_numpy() == expected).all()

@@ -148,17 +148,22 @@ def decide(
         rounded = _round_length(max_neighbour_distance[quiet])
         lengths, where_length = np.unique(rounded, return_inverse=True)
         distance_text = np.array([format_length(d) for d in lengths], dtype=object)
-        tenths = np.round(absz[quiet], 1)
-        key = pd.DataFrame({"z": tenths, "k": count[quiet], "d": where_length})
-        codes, uniques = pd.MultiIndex.from_frame(key).factorize()
+        # one integer per (z in tenths, neighbour count, distance): np.unique over
+        # int64 is several times faster than factorizing a three-column index
+        tenths = np.rint(np.round(absz[quiet], 1) * 10).astype(np.int64)
+        k_quiet = count[quiet].astype(np.int64)
+        k_span = int(k_quiet.max()) + 1
+        key = (tenths * k_span + k_quiet) * lengths.size + where_length
+        uniques, codes = np.unique(key, return_inverse=True)
+        d_of, rest = uniques % lengths.size, uniques // lengths.size
         sentences = np.array(
             [
-                f"within {zt:.1f} robust sd of the value expected from {k} neighbours within {distance_text[d]}"
-                for zt, k, d in uniques
+                f"within {t / 10:.1f} robust sd of the value expected from {k} neighbours within {distance_text[d]}"
+                for t, k, d in zip(rest // k_span, rest % k_span, d_of)
             ],
             dtype=object,
         )
-        main[quiet] = sentences[codes]
+        main[quiet] = sentences[codes.ravel()]
     for i in np.flatnonzero(~unscreened & ~quiet):
         a = absz[i]
         neighbours = f"{count[i]} neighbours within {format_length(max_neighbour_distance[i])}"
