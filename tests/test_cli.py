@@ -494,3 +494,17 @@ def test_many_neighbours_screen_completes(tmp_path, capfd, n, options):
     p = layer.loc[judged, "local_moran_p"]
     assert p.notna().all() and ((p > 0) & (p <= 1)).all()
     assert fingerprint(source) == before
+
+def test_context_options_reach_the_screen(tmp_path, capfd):
+    wells = build_wells(150, seed=41)
+    wells["gse"] = wells["level_m"] + 8.0
+    wells.loc[5, "gse"] = wells.loc[5, "level_m"] - 3.0  # a level 3 m above its land surface
+    source = write_points(wells, tmp_path / "w.gpkg")
+    layer, _ = _run_and_read(tmp_path, capfd, source, "--value", "level_m", "--ground-elevation", "gse", "--units", "m",
+                             "--quantity", "level")
+    row = layer.loc[wells.loc[5, "well_id"]]
+    assert row["screen_status"] == "suspect" and "above the land surface" in row["screen_reasons"]
+    info = pyogrio.read_dataframe(tmp_path / "out.gpkg", layer="run_info")
+    assert "ground_elevation" in " ".join(str(v) for v in info.to_numpy().ravel())
+    code, text = run(["screen", source, "--value", "level_m", "--quantity", "volume", "--out", tmp_path / "x.gpkg"], capfd)
+    assert code == 2 and "volume" in text

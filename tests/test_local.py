@@ -235,3 +235,20 @@ def test_wells_strung_along_a_line_are_screened(direction):
     assert np.isfinite(r.z[10:110]).all()
     assert r.z[60] > 10
     assert np.mean(np.abs(np.delete(r.z, 60)) > 3.5) < 0.03
+
+
+def test_extrapolation_excess_and_one_side():
+    from pointsift.graph import build_graph
+    from pointsift.methods.local import extrapolation
+
+    # a point at the origin with four neighbours east of it (one side) and one ringed by neighbours
+    xy = np.array([[0.0, 0.0], [10.0, -5.0], [10.0, 5.0], [20.0, -5.0], [20.0, 5.0],
+                   [100.0, 100.0], [110.0, 100.0], [90.0, 100.0], [100.0, 110.0], [100.0, 90.0]])
+    values = np.array([0.0, 10.0, 10.0, 20.0, 20.0, 5.0, 4.0, 6.0, 5.0, 5.0])
+    graph = build_graph(xy, k=4)
+    # a plane through the east neighbours predicts 0 at the origin: 10 below the lowest (10), range 10,
+    # so 10 - 0.25 * 10 = 7.5 beyond the slack
+    expected = np.array([0.0, np.nan, np.nan, np.nan, np.nan, 5.0, np.nan, np.nan, np.nan, np.nan])
+    excess, one_sided = extrapolation(xy, values, expected, graph)
+    assert excess[0] == 7.5 and excess[5] == 0.0
+    assert one_sided[0] and not one_sided[5]

@@ -266,7 +266,8 @@ def test_quadrant_and_strip_numbers_equal_the_geopackage(screened):
     np.testing.assert_array_equal(table["gamma"].to_numpy(dtype=float), got)
     pairs = pyogrio.read_dataframe(screened["gpkg"], layer="lag_pairs")
     lp = summary["lag_pairs"]
-    assert lp["available"] and lp["pairs_flagged"] > 0 and len(pairs) == lp["pairs_flagged"]
+    # the layer holds the flagged pairs that carry evidence about an error (issue 11): the report lists those
+    assert lp["available"] and lp["pairs_flagged"] >= len(pairs) == lp["pairs_written"] > 0
     # the JSON lists the farthest-out pairs (at most 100), each one a row of the GeoPackage's layer, in its order
     listed = lp["flagged_pairs"]
     assert len(listed) == lp["flagged_pairs_listed"] == min(100, len(pairs)) > 0

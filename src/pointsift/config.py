@@ -50,12 +50,20 @@ __all__ = [
     "plan_keys",
     "current_caller",
     "DEFAULT_SENTINELS",
+    "QUANTITIES",
+    "TRANSFORMS",
+    "LAND_SURFACE_USES",
 ]
 
 DEFAULT_SENTINELS: tuple[float, ...] = (-9999.0, -999.0, -99999.0)
 
 #: Commands whose options come from the table.
 COMMANDS = ("screen", "describe", "batch")
+#: What the value column measures (see ``ScreenConfig.quantity``).
+QUANTITIES = ("level", "depth", "concentration", "other")
+TRANSFORMS = ("none", "log", "auto")
+#: How the land surface enters the prediction of a water level.
+LAND_SURFACE_USES = ("auto", "depth", "drift", "none")
 
 def spell(name: str, example=None) -> str:
     """An option as the current caller writes it, optionally with an example value.
@@ -135,6 +143,31 @@ OPTIONS: dict[str, Option] = {
                minimum=0.0, min_open=True, default_text="from the extent and spacing"),
         Option("thousands", "choice", "',' says commas in text columns group thousands (\"1,234.5\")", choices=(",",),
                default_text="decided per column from its cells", commands=()),
+        # --- hydrogeological context (docs/methods.md, "The land surface and the well")
+        Option("quantity", "choice", "What the values are: water-level elevation, depth to water, concentration, other",
+               default="level", choices=QUANTITIES),
+        Option("units", "text", "Units of the values (m, ft, or text such as mg/kg), shown in reasons",
+               default_text="not stated", metavar="UNITS"),
+        Option("ground_elevation", "text", "Column of land-surface elevation at the well, in the values' vertical units",
+               metavar="COLUMN"),
+        Option("land_surface", "text", "GeoTIFF elevation model sampled at the wells where the ground elevation is blank",
+               metavar="RASTER"),
+        Option("well_depth", "text", "Column of the well's depth (screen bottom) below land surface", metavar="COLUMN"),
+        Option("site", "text", "Column naming the site: completions of one site are separate wells (nested wells)",
+               metavar="COLUMN"),
+        Option("aquifer", "text", "Column of aquifer unit or depth zone: wells compared within their unit",
+               metavar="COLUMN"),
+        Option("flowing", "text", "Column marking flowing (artesian) wells: 1, true, yes, flowing", metavar="COLUMN"),
+        Option("land_surface_use", "choice", "With a ground elevation: judge depth to water, per well level or depth "
+               "(auto), a land-surface drift, or ignore it", default="depth", choices=LAND_SURFACE_USES),
+        Option("surface_tolerance", "float", "How far a level may stand above land surface (value units)",
+               minimum=0.0, default_text="0.5 m, 1.5 ft with units ft"),
+        Option("depth_tolerance", "float", "Share of the deeper well's depth within which two records are one completion",
+               default=0.1, minimum=0.0, maximum=1.0, max_open=True),
+        Option("transform", "choice", "Scale the screen judges on (auto: log for a strongly skewed positive variable)",
+               default="none", choices=TRANSFORMS),
+        Option("depth_weighting", "bool", "Neighbours of other well depths weigh less in the local fit", default=True,
+               commands=()),
         # --- describe
         Option("directions", "numbers", "Strip directions: azimuths in degrees along which strips run, "
                "comma-separated; 90 west-east, 0 south-north", default=(90.0, 0.0), config="describe",
@@ -300,6 +333,22 @@ class ScreenConfig:
         None decides once per column from all its cells: a column whose
         comma-bearing cells each hold one comma and no dot uses decimal
         commas ("319,910" is 319.91) (:func:`pointsift.prepare.comma_convention`).
+    quantity, units, ground_elevation, land_surface, well_depth, site, aquifer, flowing : optional
+        Hydrogeological context (see :data:`OPTIONS` and docs/methods.md):
+        what the values are and their units; columns of land-surface
+        elevation (or a GeoTIFF), well depth, site, aquifer unit and a
+        flowing-well marker. Wells with no unit are compared with the nearest
+        wells of any unit and are neighbours of none.
+    land_surface_use : {"depth", "auto", "drift", "none"}
+        With a ground elevation, a level is judged as depth to water (default,
+        chosen by measurement), per well level or depth, or with a drift.
+    surface_tolerance, depth_tolerance : float
+        A level may stand this far above land surface (None: 0.5 m, 1.5 ft);
+        depths within this share are one completion.
+    transform : {"none", "log", "auto"}
+        Scale the screen judges on; reasons stay in the original units.
+    depth_weighting : bool
+        Neighbours of other depths weigh less in the local fit.
 
     Examples
     --------
@@ -330,6 +379,19 @@ class ScreenConfig:
     lag_count: int | None = None
     lag_width: float | None = None
     thousands: str | None = None
+    quantity: str = "level"
+    units: str | None = None
+    ground_elevation: str | None = None
+    land_surface: str | None = None
+    well_depth: str | None = None
+    site: str | None = None
+    aquifer: str | None = None
+    flowing: str | None = None
+    land_surface_use: str = "depth"
+    surface_tolerance: float | None = None
+    depth_tolerance: float = 0.1
+    transform: str = "none"
+    depth_weighting: bool = True
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     def __post_init__(self) -> None:

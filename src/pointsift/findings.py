@@ -333,6 +333,15 @@ def screen_findings(result, structure, strips) -> Findings:
                   "min_neighbours": int(config.min_neighbours), "permutations": int(config.permutations)}
     variogram, curves = _variogram_findings(structure)
     lag_pairs, panels = _lag_findings(structure, prepared.ids, config.seed)
+    written = result.tables.get("lag_pairs")
+    if lag_pairs is not None and written is not None and "evidence" in written.columns:
+        # the screen writes only the pairs that carry evidence about an error: list exactly those
+        difference = "residual_difference" if "residual_difference" in written.columns else "value_difference"
+        rows = written.assign(difference=written[difference])
+        lag_pairs = {**lag_pairs, "pairs_written": int(len(written)),
+                     "flagged_pairs": plain(rows[["tail_id", "head_id", "tail_value", "head_value", "difference",
+                                                  "separation", "direction", "lag", "pair_z", "culprit_id"]]
+                                            .to_dict("records"))}
     zs = np.where(status != "unscreened", result.autocorr.standardized, np.nan)
     return Findings(
         command="screen", value_column=config.value, counts=dict(result.counts), thresholds=thresholds,

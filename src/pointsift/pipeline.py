@@ -6,6 +6,7 @@ the batch runner and the Python API all call :func:`screen_frame`.
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 import time
 from dataclasses import dataclass, field
@@ -17,13 +18,17 @@ import pandas as pd
 
 from .config import ScreenConfig, spell
 from .errors import InputError
-from .graph import NeighbourGraph, build_graph, canonical_rank
+from .graph import NeighbourGraph, canonical_rank
 from .io import SourceInfo
 from .methods.autocorr import LocalAutocorrelation, local_autocorrelation, point_keys
 from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
-from .methods.repairs import likely_slips
 from .methods.lagpairs import lag_pair_reasons
+from .context import read_context
+from .hydro import context_evidence, neighbour_graph
+from .judging import choose_judging
+from .methods.nested import find_stations, one_per_station, station_echo
+from .methods.repairs import KINDS_FOR, likely_slips, repair_chance
 from .methods.strips import flagged_strip_evidence, strip_summary
 from .prepare import Prepared, prepare
 from .record import CAUTION, library_versions, run_record
@@ -205,21 +210,134 @@ def spatial_structure(prepared: Prepared, *, detrend: str = "auto", lag_count=No
     return SpatialStructure(fit, values, trend_info, lag_screen, variogram, basis, record)
 
 
-def _strips(prepared: Prepared):
-    """West-east and south-north strips with the calibrated mean-median statistic, and their polygon layer."""
-    result = strip_summary(prepared.xy[:, 0], prepared.xy[:, 1], np.where(prepared.usable, prepared.values, np.nan))
+def _strips(prepared: Prepared, detrended: np.ndarray | None = None):
+    """West-east and south-north strips with the calibrated mean-median statistic, and their polygon layer.
+
+    Judged on the residuals from the regional trend when one was fitted
+    (``detrended``), so the flank of a valley is not a skewed strip.
+    """
+    values = prepared.values if detrended is None else detrended
+    result = strip_summary(prepared.xy[:, 0], prepared.xy[:, 1], np.where(prepared.usable, values, np.nan))
     layer = gpd.GeoDataFrame(result.table, geometry="geometry", crs=prepared.work_crs)
     return result, layer
 
 
-def _spatial_tables(lag_screen, variogram, prepared: Prepared) -> dict:
-    """The ``lag_pairs`` line layer (work CRS) and the ``variogram`` table."""
+_CLIP_SD = 5.0
+
+
+def _clipped(values: np.ndarray) -> np.ndarray:
+    """Values winsorized at the median +- ``_CLIP_SD`` robust sd (Huber-type; NaN kept)."""
+    finite = np.isfinite(values)
+    if finite.sum() < 3:
+        return values
+    centre = np.median(values[finite])
+    spread = 1.482602218505602 * np.median(np.abs(values[finite] - centre))
+    if not spread > 0:
+        return values
+    return np.where(finite, np.clip(values, centre - _CLIP_SD * spread, centre + _CLIP_SD * spread), values)
+
+
+def _raw_ids(frame, config: ScreenConfig, prepared: Prepared):
+    """The id column as text ("row N" counted from 1 where blank or without an id column)."""
+    if config.id is None:
+        return prepared.ids
+    ids = frame[config.id].astype("object").map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+    ids = ids.to_numpy(dtype=object)
+    blank = ids == ""
+    ids[blank] = [f"row {r + 1}" for r in np.flatnonzero(blank)]
+    return ids
+
+
+def _spatial_tables(lag_screen, variogram, prepared: Prepared, *, status=None, coherent=None, raw_ids=None,
+                    detrended: bool = False) -> dict:
+    """The ``lag_pairs`` line layer (work CRS) and the ``variogram`` table.
+
+    The layer keeps only pairs that carry evidence about an error: pairs
+    with a likely culprit, or with an end called ``suspect`` whose deviation
+    the neighbours do not share (pairs explained by a coherent feature, such
+    as the wells around a pumping cone, are left out). Values are in the
+    value's units (``tail_value``, ``head_value``, ``value_difference``);
+    when a trend was removed, the screened numbers are named
+    ``tail_residual``, ``head_residual``, ``residual_difference``. Ids are the
+    id column's own text, so ``culprit_id`` joins to it (row numbers, "row
+    N" counted from 1, without an id column).
+    """
     from .methods.lagpairs import lag_pairs_layer
 
-    tables = {"lag_pairs": lag_pairs_layer(lag_screen, prepared.xy, crs=prepared.work_crs)}
+    layer = lag_pairs_layer(lag_screen, prepared.xy, crs=prepared.work_crs)
+    if status is not None and len(layer):
+        tail, head = layer["tail_row"].to_numpy(), layer["head_row"].to_numpy()
+        lone = (status == "suspect") & ~coherent
+        has_culprit = layer["culprit_id"].to_numpy(dtype=object) != ""
+        evidence = np.where(has_culprit, "likely culprit", np.where(lone[tail] | lone[head], "suspect end", ""))
+        layer = layer.assign(evidence=evidence)[evidence != ""].reset_index(drop=True)
+        tail, head = layer["tail_row"].to_numpy(), layer["head_row"].to_numpy()
+        ids = raw_ids if raw_ids is not None else prepared.ids
+        culprit_row = np.where(layer["culprit_id"].to_numpy(dtype=object) == "", -1,
+                               np.where(layer["culprit_id"].to_numpy(dtype=object) == prepared.ids[tail], tail, head))
+        names = {"tail_value": "tail_residual", "head_value": "head_residual", "difference": "residual_difference"}
+        layer = layer.rename(columns=names if detrended else {"difference": "value_difference"}).drop(columns=["flagged"])
+        if detrended:
+            layer.insert(layer.columns.get_loc("tail_residual"), "tail_value", prepared.values[tail])
+            layer.insert(layer.columns.get_loc("tail_residual"), "head_value", prepared.values[head])
+            layer.insert(layer.columns.get_loc("tail_residual"), "value_difference", prepared.values[head] - prepared.values[tail])
+        layer["tail_id"] = ids[tail].astype(object)
+        layer["head_id"] = ids[head].astype(object)
+        layer["culprit_id"] = np.array([ids[r] if r >= 0 else "" for r in culprit_row], dtype=object)
+    tables = {"lag_pairs": layer}
     if variogram is not None:
         tables["variogram"] = variogram.table
     return tables
+
+
+
+def _tighter_of_level_and_depth(prepared, judging, depth_local, depth_back, graph, context, config):
+    """Per well, the prediction from the neighbours' levels or from their depth to water, whichever has the smaller scale.
+
+    The scale depends on how tightly the neighbours fit their own surface
+    (and on distance and leverage), never on the well's own value, so the
+    choice cannot favour the well. Returns the judged result (on the depth
+    scale where depth was chosen, else the level result), the result in level
+    units, and where depth was chosen. Repairs compare on the same scale.
+    """
+    level_local = local_residuals(prepared.xy, np.where(np.isfinite(judging.judged), prepared.values, np.nan), graph,
+                                  min_neighbours=config.min_neighbours,
+                                  depth=context.well_depth if config.depth_weighting and config.well_depth else None)
+    with np.errstate(invalid="ignore"):
+        use_depth = np.isfinite(depth_back.z) & ~(level_local.scale < depth_back.scale)
+    pick = {}
+    for name in ("expected", "residual", "scale", "z", "curved_z", "echo", "neighbour_count", "neighbour_distance",
+                 "coherent", "explained_by_curvature", "excluded", "quadratic_used"):
+        pick[name] = np.where(use_depth, getattr(depth_back, name), getattr(level_local, name))
+    back = dataclasses.replace(depth_back, **pick)
+    # the judged scale for the repairs: depth to water where chosen, else level expressed as depth (ground - level)
+    judged = dataclasses.replace(depth_local, expected=np.where(use_depth, depth_local.expected, context.ground - level_local.expected),
+                                 scale=np.where(use_depth, depth_local.scale, level_local.scale))
+    return judged, back, use_depth
+
+
+def _widen_for_extrapolation(prepared, judging, judged_local, local, graph, context):
+    """A prediction outside every neighbour's value is uncertain by at least how far it leaves them.
+
+    The scale becomes ``sqrt(scale**2 + excess**2)`` (judged scale), so an
+    edge well "expected 1355" among neighbours of 772-1088 is judged on a
+    wider scale; the words go into the reasons (``extrapolated`` text per row).
+    """
+    from .methods.local import extrapolation
+
+    excess, one_sided = extrapolation(prepared.xy, judging.judged, judged_local.expected, graph)
+    wide = np.isfinite(excess) & (excess > 0)
+    text = np.full(prepared.n, "", dtype=object)
+    if wide.any():
+        scale = np.where(wide, np.hypot(judged_local.scale, np.nan_to_num(excess)), judged_local.scale)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            factor = np.where(wide, scale / judged_local.scale, 1.0)
+        judged_local = dataclasses.replace(judged_local, scale=scale, z=judged_local.z / factor)
+        local = dataclasses.replace(local, scale=local.scale * factor, z=local.z / factor)
+        text[wide] = "the expected value lies well outside the range of the neighbours' values (an extrapolation): judged on a scale widened by that distance"
+    edge = one_sided & ~wide & np.isfinite(local.z)
+    text[edge] = "all neighbours lie on one side (an edge well): the prediction is an extrapolation, on a scale widened by the fit's leverage"
+    return judged_local, local, text
 
 
 def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: SourceInfo | None = None) -> ScreenResult:
@@ -268,28 +386,52 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             f"(first reason: {prepared.unscreened_reason[0]}). Check {spell('value')} and the coordinates."
         )
 
-    t = time.perf_counter()
-    usable_xy = prepared.xy[prepared.usable]
-    max_distance = config.max_distance if config.max_distance is not None else automatic_max_distance(usable_xy)
-    graph = build_graph(
-        prepared.xy,
-        kind=config.graph,
-        k=config.k,
-        within=config.within,
-        max_distance=max_distance,
-        coincident=prepared.coincident,
-        usable=prepared.usable,
-        tie_rank=canonical_rank(prepared.xy, prepared.values),
+    context = read_context(frame, config, prepared.xy, prepared.work_crs, where=where)
+    judging = choose_judging(prepared.values, prepared.usable, context, config)
+    judged_ok = prepared.usable & (judging.unjudged == "")
+    raw_ids = None
+    if config.id is not None and config.site is not None:
+        raw_ids = frame[config.id].astype("object").map(lambda v: "" if v is None else str(v)).to_numpy(dtype=object)
+    stations = find_stations(
+        prepared.coincident, judged_ok, ids=raw_ids, site=context.site if config.site else None,
+        depth=context.well_depth, aquifer=context.aquifer if config.aquifer else None,
+        depth_tolerance=config.depth_tolerance,
     )
+
+    t = time.perf_counter()
+    usable_xy = prepared.xy[judged_ok]
+    max_distance = config.max_distance if config.max_distance is not None else automatic_max_distance(usable_xy)
+    graph, _ = neighbour_graph(prepared.xy, judged_ok, stations, context, config, max_distance,
+                               tie_rank=canonical_rank(prepared.xy, prepared.values))
+    if stations.nested.any():
+        graph = one_per_station(graph, stations, context.well_depth, judging.judged,
+                                config.k if config.graph == "knn" else None)
     timings["graph_s"] = time.perf_counter() - t
 
     t = time.perf_counter()
-    local = local_residuals(prepared.xy, prepared.values, graph, min_neighbours=config.min_neighbours)
+    judged_local = local_residuals(prepared.xy, judging.judged, graph, min_neighbours=config.min_neighbours,
+                                   drift=judging.drift,
+                                   depth=context.well_depth if config.depth_weighting and config.well_depth else None)
+    local = judging.back(judged_local, prepared.values, context.ground)
+    if judging.mode == "level or depth to water":
+        judged_local, local, depth_chosen = _tighter_of_level_and_depth(prepared, judging, judged_local, local, graph,
+                                                                         context, config)
+        judging.record["wells_judged_on_depth_to_water"] = int((depth_chosen & judged_ok).sum())
+        judging.record["wells_judged_on_level"] = int((~depth_chosen & judged_ok & np.isfinite(local.z)).sum())
+    judged_local, local, extrapolated = _widen_for_extrapolation(prepared, judging, judged_local, local, graph,
+                                                                  context)
+    if stations.nested.any():
+        # completions of one site deviating alike are a feature of the site, like an echo among neighbours
+        shared = station_echo(stations, local.z, 2.0)
+        if shared.any():
+            local = dataclasses.replace(local, coherent=local.coherent | shared,
+                                        echo=np.where(shared, np.fmax(local.echo, 1.0), local.echo))
     timings["local_residual_s"] = time.perf_counter() - t
 
     counts_nb = graph.counts
-    too_few = prepared.usable & (counts_nb < config.min_neighbours)
     reasons = prepared.unscreened_reason.copy()
+    reasons = np.where((reasons == "") & (judging.unjudged != ""), judging.unjudged, reasons)
+    too_few = judged_ok & (counts_nb < config.min_neighbours)
     limit = f"within {format_length(graph.max_distance)}" if np.isfinite(graph.max_distance) else "anywhere"
     twins = pd.Series(prepared.coincident).map(pd.Series(prepared.coincident).value_counts()).to_numpy() - 1
     for row in np.flatnonzero(too_few):
@@ -309,9 +451,9 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     timings["trend_lag_pairs_variogram_s"] = time.perf_counter() - t
 
     t = time.perf_counter()
-    judged = prepared.usable & ~too_few
+    judged = judged_ok & ~too_few
     autocorr = local_autocorrelation(
-        np.where(judged, detrended, np.nan), graph, permutations=config.permutations, seed=config.seed,
+        _clipped(np.where(judged, detrended, np.nan)), graph, permutations=config.permutations, seed=config.seed,
         keys=point_keys(prepared.xy, prepared.values),
     )
     timings["local_autocorrelation_s"] = time.perf_counter() - t
@@ -319,22 +461,33 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     lag_screen, variogram, spatial_info = structure.lag_screen, structure.variogram, structure.record
 
     t = time.perf_counter()
-    strips, strip_layer = _strips(prepared)
+    trended = trend_info.get("method", "none") != "none"
+    strips, strip_layer = _strips(prepared, detrended if trended else None)
     timings["strips_s"] = time.perf_counter() - t
 
     coincident = coincident_conflicts(
-        prepared.values,
-        prepared.coincident,
+        judging.judged if judging.mode == "log" else prepared.values,
+        stations.duplicate,
         local.z,
-        local.scale,
+        judged_local.scale,
         value_tolerance=config.coincident_value_tolerance,
         decisive_z=2.0,
     )
     farthest = np.where(graph.mask, graph.distances, -np.inf).max(axis=1, initial=-np.inf)
     farthest = np.where(np.isfinite(farthest), farthest, np.nan)
 
+    evidence, context_info = context_evidence(prepared, context, judging, stations, graph, local, config, judged_ok)
+    with np.errstate(invalid="ignore"):
+        evidence.append(((extrapolated != "") & (np.abs(local.z) >= config.review_z), extrapolated, "note"))
     candidates = (reasons == "") & np.isfinite(local.z) & (np.abs(local.z) >= config.review_z)
-    slips = likely_slips(prepared.values, local.expected, local.scale, candidates)
+    kinds = KINDS_FOR[config.quantity]
+    if config.units is not None and config.units.lower() not in ("m", "ft") and "units" in kinds:
+        kinds = tuple(k for k in kinds if k != "units")
+    sound = (reasons == "") & np.isfinite(local.z) & (np.abs(local.z) < config.review_z)
+    slip_args = dict(kinds=kinds, ground=context.ground, to_judged=judging.to_judged)
+    chance = repair_chance(prepared.values, judged_local.expected, judged_local.scale, sound, seed=config.seed, **slip_args)
+    slips = likely_slips(prepared.values, judged_local.expected, judged_local.scale, candidates, chance=chance,
+                         units=config.units or "", **slip_args)
 
     t = time.perf_counter()
     verdict = decide(
@@ -347,7 +500,8 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         autocorr=autocorr,
         coincident=coincident,
         config=config,
-        supporting=(lag_pair_reasons(lag_screen), flagged_strip_evidence(strips, prepared.n)),
+        supporting=(lag_pair_reasons(lag_screen), flagged_strip_evidence(strips, prepared.n, of=" trend residual" if trended else "")),
+        evidence=evidence,
     )
     timings["verdict_s"] = time.perf_counter() - t
 
@@ -368,7 +522,8 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         "neighbour_distance_m": np.where(screened, np.round(local.neighbour_distance, 2), np.nan),
         "local_moran_i": np.where(screened, autocorr.moran_i, np.nan),
         "local_moran_quadrant": np.array(
-            [QUADRANT_WORDS.get(int(q)) if s else None for q, s in zip(autocorr.quadrant, screened)], dtype=object
+            [QUADRANT_WORDS.get(int(q)) if s and p <= config.fdr else None
+             for q, s, p in zip(autocorr.quadrant, screened, np.nan_to_num(autocorr.p_adjusted, nan=np.inf))], dtype=object
         ),
         "local_moran_p": np.where(screened, autocorr.p_value, np.nan),
         "local_moran_p_adjusted": np.where(screened, autocorr.p_adjusted, np.nan),
@@ -406,22 +561,33 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "local_quadratic": int((screened & local.quadratic_used).sum()),
         },
         trend=trend_info,
+        judged_scale=judging.record,
+        strips={"values": "residuals from the regional trend" if trended else "the values"},
+        context={**context.record, **context_info},
+        repairs={"kinds": list(kinds), "chance_of_fitting_by_chance": {k: (round(v, 4) if isinstance(v, float) else v) for k, v in chance.items()},
+                 "counted_when_chance_at_most": 0.01},
         local_autocorrelation={
             "kernel": autocorr.kernel,
             "permutations": config.permutations,
             "points_with_more_permutations": int((autocorr.permutations > config.permutations).sum()),
             "p_adjustment": "Benjamini-Hochberg",
+            "standardization": (f"values clipped at the median +- {_CLIP_SD:g} robust sd (1.4826 x MAD) before the "
+                                "mean/sd standardization, so gross errors neither inflate the sd nor squash the scatter"),
+            "quadrant_column": "filled only where the adjusted p passes the fdr",
             "fdr": config.fdr,
         },
         **spatial_info,
         counts=counts,
         timings_s={k: round(v, 4) for k, v in timings.items()},
     )
+    run_info["notes"] = run_info["notes"] + list(judging.notes)
     return ScreenResult(
         frame=out,
         counts=counts,
         run_info=run_info,
-        tables={"strips": strip_layer, **_spatial_tables(lag_screen, variogram, prepared)},
+        tables={"strips": strip_layer, **_spatial_tables(
+            lag_screen, variogram, prepared, status=added["screen_status"], coherent=local.coherent,
+            raw_ids=_raw_ids(frame, config, prepared), detrended=trend_info.get("method", "none") != "none")},
         prepared=prepared,
         graph=graph,
         local=local,

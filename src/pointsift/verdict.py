@@ -69,8 +69,26 @@ def _round_length(metres: np.ndarray) -> np.ndarray:
     return np.where(metres < 1000, np.round(metres), np.where(metres < 20000, np.round(metres, -2), np.round(metres, -3)))
 
 
-def _num(v: float) -> str:
-    return f"{v:.5g}" if np.isfinite(v) else "n/a"
+
+#: Examples of a real local feature, by quantity (a pumping cone only for water).
+FEATURE_WORDS = {
+    "level": "for example a pumping cone or a valley",
+    "depth": "for example a pumping cone or a valley",
+    "concentration": "for example a hot spot or a plume",
+    "other": "",
+}
+
+
+def _feature(config: ScreenConfig) -> str:
+    words = FEATURE_WORDS.get(getattr(config, "quantity", "level"), "")
+    return f"likely a real local feature ({words}), check before correcting" if words else \
+        "likely a real local feature, check before correcting"
+
+
+def _value(v: float, config: ScreenConfig) -> str:
+    from .methods.plausibility import fmt
+
+    return fmt(v, getattr(config, "units", None) or "")
 
 
 def decide(
@@ -85,6 +103,7 @@ def decide(
     config: ScreenConfig,
     supporting: tuple[np.ndarray, ...] = (),
     slips: tuple[np.ndarray, np.ndarray] | None = None,
+    evidence: list | tuple = (),
 ) -> pd.DataFrame:
     """Status, score and reasons for every row.
 
@@ -97,7 +116,7 @@ def decide(
     unscreened_reason : ndarray of object
         Reason per row from preparation and the graph ("" when screenable).
     local : LocalResult
-        Robust local residuals.
+        Robust local residuals (original units).
     max_neighbour_distance : ndarray
         Distance to the farthest neighbour used, per row.
     autocorr : LocalAutocorrelation or None
@@ -105,14 +124,18 @@ def decide(
     coincident : pandas.DataFrame
         From :func:`pointsift.methods.coincident.coincident_conflicts`.
     config : ScreenConfig
-        Thresholds (``suspect_z``, ``review_z``, ``fdr``).
+        Thresholds (``suspect_z``, ``review_z``, ``fdr``), quantity and units.
     supporting : tuple of ndarray of object
         Extra sentences per row ("" for none) from other methods, added to
         the reasons of flagged points.
     slips : (ndarray of bool, ndarray of object), optional
         From :func:`pointsift.methods.repairs.likely_slips`: a common entry
-        mistake, undone, makes the value fit. Raises ``review`` to
-        ``suspect`` for a deviation the neighbours do not share.
+        mistake, undone, makes the value fit and is unlikely to fit by
+        chance. Raises ``review`` to ``suspect`` for a deviation the
+        neighbours do not share.
+    evidence : sequence of (mask, text, level)
+        Further evidence per row; ``level`` "suspect" (strong: makes the
+        row suspect), "review" (asks for a look) or "note" (said, changes nothing).
 
     Returns
     -------
@@ -130,15 +153,58 @@ def decide(
     role = coincident["role"].to_numpy()
     contradicted = role == ROLE_CONTRADICTED
     undecided = role == "undecided"
+    strong = np.zeros(n, dtype=bool)
+    weak = np.zeros(n, dtype=bool)
+    for mask, _, level in evidence:
+        if level == "suspect":
+            strong |= mask
+        elif level == "review":
+            weak |= mask
+    strong &= ~unscreened
+    weak &= ~unscreened
 
     slip_fits = slips[0] if slips is not None else np.zeros(n, dtype=bool)
-    suspect = ~unscreened & ((((absz >= config.suspect_z) | (slip_fits & (absz >= config.review_z))) & ~echoed) | contradicted)
-    review = ~unscreened & ~suspect & ((absz >= config.review_z) | undecided)
+    by_residual = ((absz >= config.suspect_z) | (slip_fits & (absz >= config.review_z))) & ~echoed
+    suspect = ~unscreened & (by_residual | contradicted | strong)
+    review = ~unscreened & ~suspect & ((absz >= config.review_z) | undecided | weak)
     status = np.where(unscreened, UNSCREENED, np.where(suspect, SUSPECT, np.where(review, REVIEW, OK)))
-    score = np.where(contradicted | (suspect & slip_fits), np.maximum(score, config.suspect_z), score)
+    score = np.where(contradicted | strong | (suspect & slip_fits), np.maximum(score, config.suspect_z), score)
     score = np.where(unscreened, np.nan, np.round(score, 3))
+    main = _main_sentences(values, local, absz, unscreened, reason_fallback, max_neighbour_distance, echoed, status, config)
 
-    # --- reasons, built column-wise -------------------------------------------------
+    flagged = np.isin(status, FLAGGED)
+    # evidence that decided the status leads; the residual sentence follows
+    lead = np.full(n, "", dtype=object)
+    for mask, text, level in evidence:
+        said = mask & ~unscreened & (text != "")
+        if level == "note":
+            continue
+        for i in np.flatnonzero(said):
+            lead[i] = text[i] if lead[i] == "" else f"{lead[i]}; {text[i]}"
+    parts = [np.where(lead != "", lead, ""), np.array(main, dtype=object)]
+
+    if autocorr is not None:
+        parts.append(_moran_text(autocorr, flagged, status, config))
+    parts.append(_coincident_text(coincident, ids, values, config))
+    if slips is not None:
+        parts.append(np.where(flagged, slips[1], ""))
+    for extra in supporting:
+        parts.append(np.where(flagged, extra, ""))
+    for mask, text, level in evidence:
+        if level == "note":
+            parts.append(np.where(mask, text, ""))
+
+    reasons = np.asarray(parts[0], dtype=object).copy()
+    for extra in parts[1:]:
+        extra = np.asarray(extra, dtype=object)
+        for i in np.flatnonzero(extra != ""):  # only the few rows with more to say
+            reasons[i] = extra[i] if reasons[i] == "" else f"{reasons[i]}; {extra[i]}"
+    return pd.DataFrame({"screen_status": status, "screen_score": score, "screen_reasons": reasons})
+
+
+def _main_sentences(values, local, absz, unscreened, reason_fallback, max_neighbour_distance, echoed, status, config):
+    """The residual sentence of every row, worded so it never contradicts the status."""
+    z = local.z
     count = local.neighbour_count
     # Rows within the review threshold share a handful of sentences: build each
     # distinct one once (fast for a million rows).
@@ -164,68 +230,63 @@ def decide(
             dtype=object,
         )
         main[quiet] = sentences[codes.ravel()]
+    feature = _feature(config)
     for i in np.flatnonzero(~unscreened & ~quiet):
         a = absz[i]
         neighbours = f"{count[i]} neighbours within {format_length(max_neighbour_distance[i])}"
         side = "above" if z[i] > 0 else "below"
         text = (
-            f"value {_num(values[i])} is {a:.1f} robust sd {side} the {_num(local.expected[i])} "
+            f"value {_value(values[i], config)} is {a:.1f} robust sd {side} the {_value(local.expected[i], config)} "
             f"expected from {neighbours}"
         )
-        if echoed[i]:
+        # a coherent deviation is said to be a feature only when it did not decide a suspect
+        if echoed[i] and status[i] != SUSPECT:
             if local.explained_by_curvature[i]:
                 text += (
                     f", but the {'plane' if local.quadratic_used[i] else 'curved surface'} of those neighbours "
-                    f"predicts it within {abs(local.curved_z[i]):.1f} sd: likely a real local feature "
-                    "(for example a pumping cone or a valley), check before correcting"
+                    f"predicts it within {abs(local.curved_z[i]):.1f} sd: {feature}"
                 )
             else:
-                text += (
-                    f", but {local.echo[i]:.0%} of those neighbours deviate the same way: likely a real local "
-                    "feature (for example a pumping cone or a valley), check before correcting"
-                )
+                text += f", but {local.echo[i]:.0%} of those neighbours deviate the same way: {feature}"
         main[i] = text
-    parts = [np.array(main, dtype=object)]
+    return main
 
-    flagged = np.isin(status, FLAGGED)
-    if autocorr is not None:
-        # supporting evidence: stated for flagged points (a smooth field puts
-        # half of all points in significant clusters; saying so on every ok
-        # row would bury the message)
-        significant = np.isfinite(autocorr.p_adjusted) & (autocorr.p_adjusted <= config.fdr) & flagged
-        outlier = significant & np.isin(autocorr.quadrant, (2, 4))
-        cluster = significant & np.isin(autocorr.quadrant, (1, 3))
-        text = np.full(n, "", dtype=object)
-        for i in np.flatnonzero(outlier | cluster):
-            kind = "spatial outlier" if outlier[i] else "part of a cluster"
-            text[i] = (
-                f"local Moran's I: {kind}, {QUADRANT_WORDS[int(autocorr.quadrant[i])]} "
-                f"(p = {autocorr.p_value[i]:.2g}, adjusted {autocorr.p_adjusted[i]:.2g}; Gi* z = {autocorr.gi_star_z[i]:.1f})"
-            )
-        parts.append(text)
 
+def _moran_text(autocorr, flagged, status, config):
+    """Local Moran's I as supporting evidence of flagged points.
+
+    A smooth field puts half of all points in significant clusters; saying so
+    on every ok row would bury the message. A suspect is never called "part
+    of a cluster" (it is flagged because it stands apart).
+    """
+    n = status.size
+    significant = np.isfinite(autocorr.p_adjusted) & (autocorr.p_adjusted <= config.fdr) & flagged
+    outlier = significant & np.isin(autocorr.quadrant, (2, 4))
+    cluster = significant & np.isin(autocorr.quadrant, (1, 3)) & (status != SUSPECT)
     text = np.full(n, "", dtype=object)
+    for i in np.flatnonzero(outlier | cluster):
+        kind = "spatial outlier" if outlier[i] else "part of a cluster"
+        text[i] = (
+            f"local Moran's I: {kind}, {QUADRANT_WORDS[int(autocorr.quadrant[i])]} "
+            f"(p = {autocorr.p_value[i]:.2g}, adjusted {autocorr.p_adjusted[i]:.2g}; Gi* z = {autocorr.gi_star_z[i]:.1f})"
+        )
+    return text
+
+
+def _coincident_text(coincident, ids, values, config):
+    role = coincident["role"].to_numpy()
     diff = coincident["difference"].to_numpy()
     partner = coincident["partner"].to_numpy()
+    text = np.full(role.size, "", dtype=object)
     for i in np.flatnonzero(role != ""):
-        other = ids[partner[i]] if partner[i] >= 0 else "another record"
+        other = ids[partner[i]] if 0 <= partner[i] != i else "another record"
+        d = _value(diff[i], config)
         if role[i] == ROLE_AGREES:
             text[i] = f"a coincident record ({other}) agrees"
         elif role[i] == ROLE_CONTRADICTED:
-            text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with {other}"
+            text[i] = f"coincident record disagrees by {d}: the neighbours side with {other}"
         elif role[i] == "supported":
-            text[i] = f"coincident record disagrees by {_num(diff[i])}: the neighbours side with this record, not {other}"
+            text[i] = f"coincident record disagrees by {d}: the neighbours side with this record, not {other}"
         else:
-            text[i] = f"coincident record disagrees by {_num(diff[i])} ({other}); the neighbours cannot tell which is right"
-    parts.append(text)
-    if slips is not None:
-        parts.append(np.where(flagged, slips[1], ""))
-    for extra in supporting:
-        parts.append(np.where(flagged, extra, ""))
-
-    reasons = np.asarray(parts[0], dtype=object).copy()
-    for extra in parts[1:]:
-        extra = np.asarray(extra, dtype=object)
-        for i in np.flatnonzero(extra != ""):  # only the few rows with more to say
-            reasons[i] = f"{reasons[i]}; {extra[i]}"
-    return pd.DataFrame({"screen_status": status, "screen_score": score, "screen_reasons": reasons})
+            text[i] = f"coincident record disagrees by {d} ({other}); the neighbours cannot tell which is right"
+    return text

@@ -41,7 +41,7 @@ import numpy as np
 from ..graph import NeighbourGraph
 from .robust import MAD_TO_SD as _MAD_TO_SD
 
-__all__ = ["LocalResult", "local_residuals", "robust_plane_predict", "distance_scale", "neighbour_echo"]
+__all__ = ["LocalResult", "local_residuals", "robust_plane_predict", "distance_scale", "neighbour_echo", "extrapolation"]
 
 _BISQUARE_C = 4.685  # 95 % efficiency at the normal, Beaton and Tukey 1974
 
@@ -192,6 +192,8 @@ def robust_plane_predict(
     *,
     iterations: int = 3,
     min_neighbours: int = 3,
+    drift: np.ndarray | None = None,
+    depth: np.ndarray | None = None,
 ):
     """Predict each value from its neighbours with a robust local plane.
 
@@ -207,6 +209,20 @@ def robust_plane_predict(
         Bisquare reweighting steps.
     min_neighbours : int
         Rows with fewer usable neighbours are not predicted (NaN).
+    drift : ndarray, optional
+        An external drift (for water levels: the land-surface elevation at
+        each point, NaN where unknown). It enters every local fit as one more
+        term, the neighbour's drift minus the point's, so the prediction at
+        the point follows the drift with the slope the neighbours show
+        (kriging with an external drift, Wackernagel 2003, ch. 37, in its
+        local regression form). A row whose own drift is unknown is fitted
+        without it.
+    depth : ndarray, optional
+        Well depth per point (NaN unknown). A neighbour of another depth
+        counts less: its distance weight is multiplied by
+        ``1 / (1 + (ln(d_j / d_i) / ln 2) ** 2)``, a half for a well twice
+        or half as deep (wells screened at other depths tap other parts of
+        the aquifer and carry other heads).
 
     Returns
     -------
@@ -232,6 +248,11 @@ def robust_plane_predict(
     dy = np.where(mask, (xy[safe, 1] - xy[:, 1:2]) / length[:, None], 0.0)
     v = np.where(mask, values[safe], 0.0)
     w_dist = np.where(mask, 1.0 / (1.0 + (graph.distances / length[:, None]) ** 2), 0.0)
+    if depth is not None:
+        depth = np.asarray(depth, dtype=float)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ratio = np.log(depth[safe] / depth[:, None]) / np.log(2.0)
+        w_dist = w_dist * np.where(mask & np.isfinite(ratio), 1.0 / (1.0 + ratio * ratio), 1.0)
 
     centre = _masked_median(v, mask)
     spread = _MAD_TO_SD * _masked_median(np.abs(v - centre[:, None]), mask)
@@ -243,9 +264,19 @@ def robust_plane_predict(
     w_rob = _bisquare((v - centre[:, None]) / (6.0 * np.maximum(spread, floor)[:, None]))
     w_rob = np.where(mask, w_rob, 0.0)
 
-    dof = np.maximum(count - 3, 1)
+    terms = [np.ones_like(dx), dx, dy]
+    if drift is not None:
+        drift = np.asarray(drift, dtype=float)
+        own_drift = np.isfinite(drift)
+        dg = np.where(mask & own_drift[:, None] & np.isfinite(drift[safe]), drift[safe] - drift[:, None], 0.0)
+        # scaled like the coordinates, so the light ridge treats all terms alike
+        dg_scale = _masked_median(np.abs(dg), mask & (dg != 0))
+        dg = dg / np.where(np.isfinite(dg_scale) & (dg_scale > 0), dg_scale, 1.0)[:, None]
+        terms.append(dg)
+    params = len(terms)
+    dof = np.maximum(count - params, 1)
     df_correction = np.sqrt(count / dof)
-    plane = np.stack([np.ones_like(dx), dx, dy], axis=2)
+    plane = np.stack(terms, axis=2)
     fit_scale = spread
     for step in range(iterations + 1):
         w = w_dist * w_rob
@@ -268,10 +299,10 @@ def robust_plane_predict(
     enough = ok & ((w > 0).sum(axis=1) >= 8)
     qcoef, qleverage = _batched_wls(quad, v, w, enough, ridge_from=1)
     quadratic = np.where(enough, qcoef[:, 0], np.nan)
-    curvature = np.where(enough, qcoef[:, 3] + qcoef[:, 5], np.nan)
+    curvature = np.where(enough, qcoef[:, params] + qcoef[:, params + 2], np.nan)
     qleverage = np.where(enough, qleverage, np.nan)
     qresid = v - (quad @ qcoef[:, :, None])[:, :, 0]
-    qdof = np.maximum(count - 6, 1)
+    qdof = np.maximum(count - params - 3, 1)
     qfit_scale = _MAD_TO_SD * _masked_median(np.abs(qresid), mask & (w > 0)) * np.sqrt(count / qdof)
     qfit_scale = np.where(enough, np.maximum(qfit_scale, floor), np.nan)
 
@@ -281,7 +312,7 @@ def robust_plane_predict(
     # Two or more such neighbours make a group (the wells of one pumping
     # station, low together), which the bisquare weights would otherwise discount.
     own = values - coef[:, 0]
-    carried = values[:, None] + coef[:, 1:2] * dx + coef[:, 2:3] * dy
+    carried = values[:, None] + (plane[:, :, 1:] @ coef[:, 1:, None])[:, :, 0]
     alike = mask & (np.abs(v - carried) < np.abs(own)[:, None] / 3.0)
     alike_count = alike.sum(axis=1)
     alike_share = np.where(ok & (alike_count >= 2), alike_count / np.maximum(count, 1), 0.0)
@@ -380,17 +411,18 @@ def _pooled_scale(fit_scale, count, params, distance, innovation, local_df, prio
     return unit, global_scale, (knots, knot_scale)
 
 
-def _one_pass(xy, values, graph, min_neighbours, local_df, prior_df):
-    fit = robust_plane_predict(xy, values, graph, min_neighbours=min_neighbours)
+def _one_pass(xy, values, graph, min_neighbours, local_df, prior_df, drift=None, depth=None):
+    fit = robust_plane_predict(xy, values, graph, min_neighbours=min_neighbours, drift=drift, depth=depth)
+    params = 3 if drift is None else 4
     residual = values - fit.expected
     inflation = np.sqrt(1.0 + fit.leverage)
     unit, global_plane, model = _pooled_scale(
-        fit.fit_scale, fit.count, 3, fit.distance, residual / inflation, local_df, prior_df
+        fit.fit_scale, fit.count, params, fit.distance, residual / inflation, local_df, prior_df
     )
     q_residual = values - fit.quadratic
     q_inflation = np.sqrt(1.0 + fit.quadratic_leverage)
     q_unit, global_quad, q_model = _pooled_scale(
-        fit.quadratic_fit_scale, fit.count, 6, fit.distance, q_residual / q_inflation, local_df, prior_df
+        fit.quadratic_fit_scale, fit.count, params + 3, fit.distance, q_residual / q_inflation, local_df, prior_df
     )
     with np.errstate(all="ignore"):
         plane_scale = unit * inflation
@@ -436,6 +468,8 @@ def local_residuals(
     curve_z: float = 3.0,
     local_df: float = 7.0,
     prior_df: float = 8.0,
+    drift: np.ndarray | None = None,
+    depth: np.ndarray | None = None,
 ) -> LocalResult:
     """Standardized robust local residual of every point.
 
@@ -461,6 +495,11 @@ def local_residuals(
         and bends the same way.
     local_df, prior_df : float
         Weights of the local and the distance scale when pooling them.
+    drift : ndarray, optional
+        External drift per point (see :func:`robust_plane_predict`).
+    depth : ndarray, optional
+        Well depth per point: neighbours of other depths weigh less (see
+        :func:`robust_plane_predict`).
 
     Returns
     -------
@@ -468,14 +507,14 @@ def local_residuals(
     """
     values = np.asarray(values, dtype=float)
     fit, _, residual1, _, z1, (alt_z1, alt_res1), use_quad1, _ = _one_pass(
-        xy, values, graph, min_neighbours, local_df, prior_df
+        xy, values, graph, min_neighbours, local_df, prior_df, drift, depth
     )
     echo1 = np.fmax(neighbour_echo(z1, graph, echo_z), fit.alike_share)
     coherent1, _ = _coherent(z1, residual1, alt_z1, alt_res1, use_quad1, fit.curvature, echo1, echo_share, curve_z)
     excluded = np.isfinite(z1) & (np.abs(z1) >= gross_z) & ~coherent1
     graph_used = graph.restrict(np.isfinite(values) & ~excluded) if excluded.any() else graph
     fit, expected, residual, scale, z, curved_z, use_quad, model = _one_pass(
-        xy, values, graph_used, min_neighbours, local_df, prior_df
+        xy, values, graph_used, min_neighbours, local_df, prior_df, drift, depth
     )
     # echoed: neighbours deviate alike in their own residuals, or have values
     # like the point's (a group the robust fit set aside)
@@ -499,3 +538,42 @@ def local_residuals(
         distance_model=model,
         quadratic_used=use_quad,
     )
+
+
+def extrapolation(xy: np.ndarray, values: np.ndarray, expected: np.ndarray, graph: NeighbourGraph):
+    """How far each prediction leaves its neighbours' values, and whether they all lie on one side.
+
+    Returns
+    -------
+    excess : ndarray
+        Distance of ``expected`` outside [min, max] of the neighbours' values
+        beyond a quarter of their range (a local surface may bend a little
+        past its data, as at the bottom of a cone; 0 inside, NaN where not
+        predicted).
+    one_sided : ndarray of bool
+        Every neighbour lies within a half-plane through the point (the
+        largest angular gap between neighbours exceeds 180 degrees).
+    """
+    idx = graph.indices
+    mask = graph.mask & np.isfinite(values[np.where(idx >= 0, idx, 0)])
+    safe = np.where(mask, idx, 0)
+    v = values[safe]
+    low = np.where(mask, v, np.inf).min(axis=1)
+    high = np.where(mask, v, -np.inf).max(axis=1)
+    with np.errstate(invalid="ignore"):
+        slack = 0.25 * (high - low)
+        excess = np.where(np.isfinite(expected) & mask.any(axis=1),
+                          np.maximum(low - slack - expected, 0.0) + np.maximum(expected - high - slack, 0.0), np.nan)
+        angle = np.where(mask, np.arctan2(xy[safe, 1] - xy[:, 1:2], xy[safe, 0] - xy[:, 0:1]), np.inf)
+    angle = np.sort(angle, axis=1)
+    count = mask.sum(axis=1)
+    rows = np.arange(angle.shape[0])
+    with np.errstate(invalid="ignore"):
+        gaps = np.diff(angle, axis=1)
+        gaps = np.where(np.isfinite(gaps), gaps, -np.inf)
+        first = angle[:, 0]
+        last = angle[rows, np.maximum(count - 1, 0)]
+        wrap = np.where(count >= 2, 2 * np.pi - (last - first), -np.inf)
+    largest = np.maximum(gaps.max(axis=1, initial=-np.inf), wrap)
+    one_sided = (count >= 2) & (largest > np.pi)
+    return excess, one_sided

@@ -612,7 +612,7 @@ def strip_summary(
     )
 
 
-def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
+def flagged_strip_evidence(result: StripResult, n_points: int, *, of: str = "") -> np.ndarray:
     """Evidence text for the points that are the extreme value of a flagged strip.
 
     Parameters
@@ -633,7 +633,7 @@ def flagged_strip_evidence(result: StripResult, n_points: int) -> np.ndarray:
     out = np.full(n_points, "", dtype=object)
     for row in result.flagged.itertuples(index=False):
         text = (
-            f"extreme value of {direction_words(float(row.direction), 'strip')} {row.strip}, whose mean ({row.mean:.4g}) "
+            f"extreme value of {direction_words(float(row.direction), 'strip')} {row.strip}, whose mean{of} ({row.mean:.4g}) "
             f"is far from its median ({row.median:.4g}; u = {row.u:+.2f}, n = {row.n})"
         )
         position = int(row.extreme_row)

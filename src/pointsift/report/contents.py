@@ -85,7 +85,8 @@ def _head(findings, run_info: dict, title: str | None, versions: dict, caution: 
         "counts": plain(findings.counts),
         "thresholds": plain(findings.thresholds),
         "parameters": plain(run_info.get("parameters", {})),
-        "settings": plain({k: run_info[k] for k in ("graph", "trend", "local_autocorrelation", "predictor", "strip_widths_m")
+        "settings": plain({k: run_info[k] for k in ("graph", "trend", "local_autocorrelation", "predictor", "strip_widths_m",
+                                                   "context", "judged_scale", "repairs")
                            if k in run_info}),
         "versions": plain(run_info.get("versions") or versions),
         "caution": run_info.get("caution") or caution,
