@@ -412,6 +412,8 @@ def test_two_outputs_of_one_run_may_not_share_a_file(tmp_path, wells_gpkg):
         psio.check_output_paths([("--out", out), ("--report", tmp_path / "." / "out.gpkg")], [wells_gpkg])
     assert not out.exists()
     psio.check_output_paths([("--out", out), ("--report", tmp_path / "out.html")], [wells_gpkg])  # distinct: fine
+
+
 def test_atomic_write_replaces_only_when_the_block_succeeds(tmp_path):
     target = tmp_path / "out.txt"
     target.write_text("old")
@@ -439,3 +441,15 @@ def test_write_text_gives_usual_permissions_and_unix_line_ends(tmp_path):
     path = psio.write_text(tmp_path / "a.txt", "one\ntwo\n")
     assert path.read_bytes() == b"one\ntwo\n"
     assert (path.stat().st_mode & 0o777) == (0o666 & ~umask)  # as open() creates files (common practice)
+
+
+def test_existing_outputs_get_one_message_shape(tmp_path, wells_gpkg):
+    # Issue 10, item 12: an existing --out and an existing --report got different codes and messages.
+    (tmp_path / "out.gpkg").write_bytes(b"x")
+    (tmp_path / "out.html").write_text("x")
+    for option, name in (("--out", "out.gpkg"), ("--report", "out.html")):
+        with pytest.raises(OutputError, match=rf"^{option} '.*{name}' exists\. Pass --overwrite to replace it, or choose another path\.$"):
+            psio.check_output_paths([(option, tmp_path / name)], [wells_gpkg], overwrite=False)
+    psio.check_output_paths([("--out", tmp_path / "out.gpkg"), ("--report", tmp_path / "out.html")], [wells_gpkg], overwrite=True)
+    with pytest.raises(OutputError, match=r"Folder '.*nowhere' of --report '.*r\.html' does not exist"):
+        psio.check_output_paths([("--report", tmp_path / "nowhere" / "r.html")], [wells_gpkg], overwrite=True)

@@ -128,7 +128,7 @@ def _same_file(a: Path, b: Path) -> bool:
         return False
 
 
-def check_output_paths(outputs, inputs) -> None:
+def check_output_paths(outputs, inputs, *, overwrite: bool | None = None) -> None:
     """Refuse, before any work, an output that is a file of an input or another output.
 
     Parameters
@@ -138,11 +138,15 @@ def check_output_paths(outputs, inputs) -> None:
         ``("--out", "a.gpkg")``, ``("--report", "a.html")``.
     inputs : iterable of path-like
         The inputs read (each with its side files, :func:`input_files`).
+    overwrite : bool, optional
+        When given, also refuse an existing output without ``overwrite``
+        and an output whose folder does not exist (every output alike).
 
     Raises
     ------
     OutputError
-        An output is an input's file, or two outputs name the same file.
+        An output is an input's file, two outputs name the same file, or
+        (with ``overwrite`` given) an output exists or has no folder.
     """
     protected = [(Path(i), f) for i in inputs if i for f in input_files(i)]
     seen: list[tuple[str, Path]] = []
@@ -164,6 +168,13 @@ def check_output_paths(outputs, inputs) -> None:
                     f"Choose another {option} path."
                 )
         seen.append((option, target))
+        if overwrite is None:
+            continue
+        if target.exists() and not overwrite:
+            raise OutputError(f"{option} {str(target)!r} exists. Pass --overwrite to replace it, or choose another path.")
+        folder = target.parent if str(target.parent) else Path(".")
+        if not folder.is_dir():
+            raise OutputError(f"Folder {str(folder)!r} of {option} {str(target)!r} does not exist. Create it first or choose another path.")
 
 
 def file_sha256(path: str | os.PathLike) -> str:
