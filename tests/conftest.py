@@ -111,7 +111,7 @@ def fingerprint(path: Path) -> str:
 
 def leftovers(folder: Path) -> list[str]:
     """Temporary or partial files left in a folder."""
-    return sorted(p.name for p in Path(folder).iterdir() if ".partial" in p.name or p.name.endswith(("-journal", "-wal", "-shm")))
+    return sorted(p.name for p in Path(folder).iterdir() if "partial" in p.name or p.name.endswith(("-journal", "-wal", "-shm")))
 
 
 @pytest.fixture

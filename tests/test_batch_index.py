@@ -42,3 +42,19 @@ def test_index_written_as_csv_and_lonlat_extent_layer(tmp_path):
     np.testing.assert_allclose(layer.geometry.iloc[0].bounds, lonlat, rtol=0, atol=1e-9)
     assert layer.geometry.iloc[2] is None or layer.geometry.iloc[2].is_empty
     assert not [p for p in tmp_path.iterdir() if p.name.endswith(".tmp") or ".tmp." in p.name]
+
+
+def test_batch_index_carries_the_caution(tmp_path):
+    # Issue 10, item 19: the batch index had no caution.
+    import sqlite3
+
+    from batch_data import synthetic_points, write_gpkg
+
+    from pointsift.cli import main
+
+    write_gpkg(tmp_path / "a.gpkg", {"wells": synthetic_points(60, seed=4)})
+    assert main(["-q", "batch", str(tmp_path / "a.gpkg"), "--value", "level_m", "--out-dir", str(tmp_path / "o"),
+                 "--permutations", "99"]) == 0
+    with sqlite3.connect(tmp_path / "o" / "batch-index.gpkg") as db:  # Reference: gpkg_contents, read by sqlite3
+        text = db.execute("SELECT description FROM gpkg_contents WHERE table_name = ?", (batch.INDEX_LAYER,)).fetchone()[0]
+    assert "not determinations" in text

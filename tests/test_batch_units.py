@@ -96,3 +96,18 @@ def test_group_labels_match_pandas_groups():
 
 # ---------------------------------------------------------------------------
 # fingerprints and the index
+
+
+def test_out_dir_equal_to_the_inputs_folder_is_an_unusable_plan(tmp_path, capsys):
+    # Issue 10, item 9: the named input was dropped silently, "0 units", exit 0.
+    import hashlib
+
+    from pointsift.cli import main
+
+    source = tmp_path / "a.gpkg"
+    write_gpkg(source, {"wells": synthetic_points(60, seed=3)})
+    before = hashlib.sha256(source.read_bytes()).hexdigest()
+    code = main(["-q", "batch", str(source), "--value", "level_m", "--out-dir", str(tmp_path), "--permutations", "99"])
+    assert code == 2
+    assert "would replace an input file" in capsys.readouterr().err
+    assert hashlib.sha256(source.read_bytes()).hexdigest() == before  # reference: hashlib

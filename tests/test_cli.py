@@ -508,3 +508,74 @@ def test_context_options_reach_the_screen(tmp_path, capfd):
     assert "ground_elevation" in " ".join(str(v) for v in info.to_numpy().ravel())
     code, text = run(["screen", source, "--value", "level_m", "--quantity", "volume", "--out", tmp_path / "x.gpkg"], capfd)
     assert code == 2 and "volume" in text
+
+
+
+# --- issue 10 reproductions ------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("option", ["--report", "--summary-json"])
+@pytest.mark.parametrize("side", [".dbf", ".prj", ".shx"])
+def test_outputs_on_a_shapefile_side_file_are_refused_before_any_work(tmp_path, capfd, option, side):
+    # Issue 10, item 1: --report on the input's .dbf replaced it and exited 0.
+    source = write_points(build_wells(60, seed=40), tmp_path / "wells.shp")
+    before = fingerprint(source)
+    code, text = run(["screen", source, "--value", "level_m", "--out", tmp_path / "out.gpkg", "--overwrite",
+                      option, tmp_path / f"wells{side}", *FAST], capfd)
+    assert code == 1 and f"is a file of the input" in text and "never writes over its input" in text
+    assert fingerprint(source) == before
+    assert not (tmp_path / "out.gpkg").exists()  # refused before any work
+
+
+def test_report_equal_to_out_is_refused_before_the_geopackage_is_written(tmp_path, capfd, wells_gpkg):
+    out = tmp_path / "same.gpkg"
+    code, text = run(["screen", wells_gpkg, "--value", "level_m", "--out", out, "--report", out, *FAST], capfd)
+    assert code == 1 and "--report and --out name the same file" in text
+    assert not out.exists()
+
+
+def test_invalid_crs_is_a_usage_problem(tmp_path, capfd):
+    # Issue 10, item 12: an invalid --crs / --work-crs exited 1 like a data problem.
+    source = write_points(build_wells(30, crs=None), tmp_path / "w.csv")
+    for option in ("--crs", "--work-crs"):
+        extra = [] if option == "--crs" else ["--crs", "EPSG:32633"]
+        code, text = run(["screen", source, "--value", "level_m", "--out", tmp_path / "o.gpkg", *extra, option, "EPSG:999999", *FAST], capfd)
+        assert code == 2 and f"{option} 'EPSG:999999' is not a CRS pyproj knows" in text
+
+
+def test_control_characters_in_ids_are_escaped_on_the_terminal(tmp_path, capfd):
+    # Issue 10, item 13: an id could retitle the terminal or forge a log line.
+    wells = build_wells(120, seed=41)
+    wells.loc[3, "well_id"] = "W3\x1b]0;owned\x07"
+    wells.loc[4, "well_id"] = "W4\nWrote /etc/passwd"
+    wells.loc[3, "level_m"] += 40.0  # flagged, so printed among the strongest flags
+    wells.loc[4, "level_m"] += 40.0
+    source = write_points(wells, tmp_path / "w.gpkg")
+    code, text = run(["screen", source, "--value", "level_m", "--id", "well_id", "--out", tmp_path / "o.gpkg", *FAST], capfd)
+    assert code == 0
+    assert "\x1b" not in text and "\x07" not in text
+    assert "W3\\x1b]0;owned\\x07" in text and "W4\\nWrote /etc/passwd" in text
+    assert not any(line.startswith("Wrote /etc/passwd") for line in text.splitlines())
+
+
+def test_caution_in_the_terminal_summary_and_the_layer_description(tmp_path, capfd, wells_gpkg):
+    # Issue 10, item 19: the screened layer and the terminal summary carried no caution.
+    out = tmp_path / "o.gpkg"
+    code, text = run(["screen", wells_gpkg, "--value", "level_m", "--out", out, *FAST], capfd)
+    assert code == 0 and "Caution: flags are screening aids, not determinations" in text
+    with sqlite3.connect(out) as db:  # Reference: the GeoPackage standard's gpkg_contents.description, by sqlite3
+        description = db.execute("SELECT description FROM gpkg_contents WHERE table_name = 'screened'").fetchone()[0]
+    assert "aids for checking data, not determinations" in description
+
+
+def test_thousands_option_reads_commas_as_grouping(tmp_path, capfd):
+    # Issue 10, item 4: --thousands , says commas group thousands.
+    wells = build_wells(80, seed=42, crs=None)
+    wells["level_m"] = [f"{1000 + v:,.3f}" for v in wells["level_m"]]  # "1,200.123": thousands and a dot
+    wells.loc[0, "level_m"] = "1,200"  # alone it would read as a decimal comma
+    source = write_points(wells, tmp_path / "w.csv")
+    code, _ = run(["screen", source, "--value", "level_m", "--crs", "EPSG:32633", "--out", tmp_path / "o.gpkg",
+                   "--thousands", ",", *FAST], capfd)
+    assert code == 0
+    layer = pyogrio.read_dataframe(tmp_path / "o.gpkg", layer="screened")
+    assert layer.loc[0, "screen_status"] != "unscreened"

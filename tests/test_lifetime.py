@@ -184,7 +184,8 @@ def test_batch_with_two_jobs_stopped_by_sigterm_or_sigkill(tmp_path):
         _interrupt_at_random(args, tmp_path, moments.uniform(0.3, 0.9) * duration, signum)
         for name in outputs:  # every output whole: the previous one or a new one
             assert _sound_output(out / name, 120)
-        expected = set(outputs) | {"batch-index.gpkg"} | {p.name for p in inputs.iterdir()}
+        expected = set(outputs) | {"batch-index.gpkg", "batch-index.csv"} | {p.name for p in inputs.iterdir()}
+        expected |= {name.replace(".gpkg", ".batch.json") for name in outputs}
         assert _visible_to_a_later_run(out, expected) == []
         assert _visible_to_a_later_run(inputs, expected) == []
         rerun = subprocess.run(_command(*args), capture_output=True, text=True)

@@ -510,12 +510,12 @@ def test_cli_refuses_to_replace_a_report_without_overwrite(tmp_path):
 
     result = runner.invoke(cli, ["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o.gpkg"),
                                  "--report", str(existing)], standalone_mode=False)
-    assert result.exception is not None and "already exists" in str(result.exception)
+    assert result.exception is not None and "exists. Pass --overwrite to replace it" in str(result.exception)
     assert existing.read_text() == "keep me"
     assert main(["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o.gpkg"),
-                 "--report", str(existing)]) == 2
+                 "--report", str(existing)]) == 1  # an output problem, as for an existing --out (issue 10, item 12)
     assert main(["screen", str(source), "--value", "level_m", "--out", str(tmp_path / "o2.gpkg"),
-                 "--report", str(tmp_path / "missing" / "r.html")]) == 2
+                 "--report", str(tmp_path / "missing" / "r.html")]) == 1
 
 
 def test_report_write_refuses_the_input_and_missing_folders(screened, tmp_path):

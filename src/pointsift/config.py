@@ -65,6 +65,19 @@ TRANSFORMS = ("none", "log", "auto")
 #: How the land surface enters the prediction of a water level.
 LAND_SURFACE_USES = ("auto", "depth", "drift", "none")
 
+def _check_crs_text(text, option: str) -> None:
+    """A CRS option pyproj cannot read is a usage problem, found before any work."""
+    if text is None or not isinstance(text, str):
+        return
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError as PyprojCRSError
+
+    try:
+        CRS.from_user_input(text)
+    except PyprojCRSError:
+        raise ConfigError(f"{option} {text!r} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.") from None
+
+
 def spell(name: str, example=None) -> str:
     """An option as the current caller writes it, optionally with an example value.
 
@@ -401,6 +414,8 @@ class ScreenConfig:
                 option="value", problem="must name the column holding the measurements.",
             )
         _check_fields(self)
+        for name, option in (("crs", "--crs"), ("work_crs", "--work-crs")):
+            _check_crs_text(getattr(self, name), option)
         for name in ("sentinels", "coincident_tolerance", "k", "permutations", "seed", "fdr", "suspect_z",
                      "review_z", "detrend"):
             if getattr(self, name) is None:

@@ -63,7 +63,10 @@ def write_screen(result: ScreenResult, out_path, *, overwrite: bool = False, pro
     layers = {SCREENED_LAYER: result.frame}
     layers.update(result.tables)
     layers["run_info"] = run_info_table(result.run_info)
-    return write_geopackage(out_path, layers, overwrite=overwrite, protect=protect)
+    # the caution travels with the layer itself (the GeoPackage's gpkg_contents.description)
+    caution = result.run_info.get("caution")
+    descriptions = {SCREENED_LAYER: caution} if caution else None
+    return write_geopackage(out_path, layers, overwrite=overwrite, protect=protect, descriptions=descriptions)
 
 
 def screen_file(
@@ -109,7 +112,7 @@ def screen_file(
     RunResult
     """
     started = time.perf_counter()
-    frame, source = read_points(input_path, layer=layer, x=x, y=y, crs=config.crs)
+    frame, source = read_points(input_path, layer=layer, x=x, y=y, crs=config.crs, thousands=config.thousands)
     if frame_filter is not None:
         frame = frame_filter(frame)
     result = screen_frame(frame, config, source=source)

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import re
 
-__all__ = ["printable"]
+__all__ = ["printable", "echo"]
 
 # C0 controls except none (tab and newline inside one message are escaped too),
 # DEL, C1 controls, and the Unicode bidirectional overrides and isolates, which
@@ -53,3 +53,11 @@ def printable(text: object, *, keep_newlines: bool = False) -> str:
         return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
 
     return _UNSAFE.sub(escape, text)
+
+
+def echo(text: object = "", *, err: bool = False, lines: bool = False) -> None:
+    """Print one line with its control characters escaped (ids and reasons come from
+    the data); ``lines=True`` keeps the line breaks of text the program composed."""
+    import click
+
+    click.echo(printable(text, keep_newlines=lines), err=err)

@@ -101,5 +101,8 @@ def write_index(outcomes: Sequence[UnitOutcome], out_dir: str | os.PathLike) -> 
     gpkg_path = out / f"{INDEX_STEM}.gpkg"
     with atomic_write(csv_path) as part:
         frame.drop(columns=frame.geometry.name).to_csv(part, index=False, lineterminator="\n")
-    write_geopackage(gpkg_path, {INDEX_LAYER: frame}, overwrite=True)
+    from ..pipeline import CAUTION
+
+    # the caution travels with the index (gpkg_contents.description)
+    write_geopackage(gpkg_path, {INDEX_LAYER: frame}, overwrite=True, descriptions={INDEX_LAYER: CAUTION})
     return csv_path, gpkg_path

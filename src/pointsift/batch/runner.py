@@ -161,10 +161,15 @@ def _remove_stale_report(out_path: Path) -> bool:
     return True
 
 
-def _worker_init() -> None:
+def _worker_init(owner: int | None = None) -> None:
     # Ctrl-C reaches the whole process group; the parent decides how to stop,
     # so a worker always finishes (or is terminated by) the parent.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    if owner is not None:
+        from ..lifetime import die_with_parent
+
+        die_with_parent(owner)  # no orphan goes on writing when the batch is killed
 
 
 class _StopRequest:
@@ -179,9 +184,17 @@ class _StopRequest:
     def __enter__(self) -> "_StopRequest":
         if threading.current_thread() is threading.main_thread():
             self._previous = signal.getsignal(signal.SIGINT)
+            self._previous_term = signal.getsignal(signal.SIGTERM)
             signal.signal(signal.SIGINT, self._handle)
+            # SIGTERM (timeout, schedulers, kill) wants the run gone soon: like a second
+            # Ctrl-C, the units in progress are abandoned; the index is still written
+            signal.signal(signal.SIGTERM, self._terminate)
             self._installed = True
         return self
+
+    def _terminate(self, signum, frame) -> None:
+        self.requested = True
+        raise KeyboardInterrupt
 
     def _handle(self, signum, frame) -> None:
         if self.requested:
@@ -195,6 +208,7 @@ class _StopRequest:
     def __exit__(self, *exc) -> None:
         if self._installed:
             signal.signal(signal.SIGINT, self._previous)
+            signal.signal(signal.SIGTERM, self._previous_term)
 
 
 @contextlib.contextmanager
@@ -219,7 +233,9 @@ def _mp_context():
     """
     if "forkserver" in multiprocessing.get_all_start_methods():
         context = multiprocessing.get_context("forkserver")
-        context.set_forkserver_preload(["pointsift.batch.runner", "pointsift.run", "pointsift.pipeline", "pointsift.io"])
+        # the guard makes the fork server die with this process (and its workers with it)
+        context.set_forkserver_preload(["pointsift._forkserver_guard", "pointsift.batch.runner", "pointsift.run",
+                                        "pointsift.pipeline", "pointsift.io"])
         return context
     return multiprocessing.get_context("spawn")
 
@@ -301,39 +317,44 @@ _LOCK_NAME = ".batch.lock"
 
 
 def _take_lock(out_dir: Path) -> Path:
-    """Claim the output folder, so two batches (say, overlapping scheduled runs) never write it at once."""
+    """Claim the output folder, so two batches (say, overlapping scheduled runs) never write it at once.
+
+    The lock holds the owner's process id and start time. It is taken over only
+    when that owner is provably dead (no such process, a zombie, or the id now
+    used by a process that started later).
+    """
+    import json
+
+    from ..lifetime import process_alive, process_start_time
+
     lock = out_dir / _LOCK_NAME
     for _ in range(2):
         try:
             handle = os.open(lock, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
         except FileExistsError:
             try:
-                holder = int(lock.read_text().strip() or "0")
-            except (OSError, ValueError):
-                holder = 0
-            if holder and _alive(holder):
+                text = lock.read_text().strip()
+                holder_record = json.loads(text) if text.startswith("{") else {"pid": int(text or "0")}
+                holder, started = int(holder_record.get("pid") or 0), holder_record.get("started")
+            except (OSError, ValueError, TypeError, AttributeError):
+                holder, started = 0, None
+            if holder and (holder == os.getpid() or process_alive(holder, started)):
                 raise OutputError(
                     f"Another batch (process {holder}) is writing to {str(out_dir)!r}. Wait for it to finish, "
                     f"or choose another --out-dir. If no batch is running, delete {str(lock)!r}."
                 ) from None
-            lock.unlink(missing_ok=True)  # left by a run that was killed
+            lock.unlink(missing_ok=True)  # left by a run that was killed: its owner is gone
             continue
         with os.fdopen(handle, "w") as stream:
-            stream.write(str(os.getpid()))
+            stream.write(json.dumps({"pid": os.getpid(), "started": process_start_time(os.getpid())}))
         return lock
     raise OutputError(f"Cannot claim {str(out_dir)!r} for the batch; delete {str(lock)!r} and run again.")
 
 
 def _alive(pid: int) -> bool:
-    if pid == os.getpid():
-        return True
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except OSError:  # exists, owned by someone else
-        return True
-    return True
+    from ..lifetime import process_alive
+
+    return pid == os.getpid() or process_alive(pid)
 
 
 def _run_units(plan, out_dir, staging, jobs, force, progress):
@@ -442,7 +463,8 @@ def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
         while pending or running:
             if executor is None:
                 executor = cf.ProcessPoolExecutor(max_workers=min(jobs, len(pending) or 1),
-                                                  mp_context=_mp_context(), initializer=_worker_init)
+                                                  mp_context=_mp_context(), initializer=_worker_init,
+                                                  initargs=(os.getpid(),))
             while pending and not stop.requested and len(running) < 2 * jobs:
                 number, task = pending.pop()
                 running[executor.submit(_screen_unit, task)] = number

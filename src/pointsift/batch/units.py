@@ -79,8 +79,17 @@ def _safe(text: str) -> str:
     return cleaned[:80]
 
 
+def _is_batch_output(path: Path) -> bool:
+    """An output of an earlier batch: the index, or a GeoPackage with its run record beside it."""
+    from .fingerprints import RECORD_SUFFIX
+
+    return path.stem == INDEX_STEM or path.with_name(f"{path.stem}{RECORD_SUFFIX}").exists()
+
+
 def _resolve_paths(spec: InputSpec, exclude: Path) -> list[Path]:
-    found: list[Path] = []
+    """Input files of a spec. Folders and globs skip hidden files and the outputs of earlier
+    batches in the output folder; a file named explicitly is always taken (never dropped silently)."""
+    found: list[tuple[Path, bool]] = []  # (path, named explicitly)
     for text in spec.paths:
         full = Path(text) if Path(text).is_absolute() else spec.base_dir / text
         if glob.has_magic(text):
@@ -90,15 +99,16 @@ def _resolve_paths(spec: InputSpec, exclude: Path) -> list[Path]:
         for match in matches:
             if match.is_dir():
                 found.extend(
-                    sorted(p for p in match.iterdir() if p.is_file() and p.suffix.lower() in DIRECTORY_SUFFIXES)
+                    (p, False) for p in sorted(match.iterdir())
+                    if p.is_file() and p.suffix.lower() in DIRECTORY_SUFFIXES and not p.name.startswith(".")
                 )
             elif match.is_file():
-                found.append(match)
+                found.append((match, not glob.has_magic(text)))
     exclude = exclude.resolve()
     unique, seen = [], set()
-    for path in found:
+    for path, named in found:
         resolved = path.resolve()
-        if resolved in seen or resolved.is_relative_to(exclude):
+        if resolved in seen or (not named and resolved.is_relative_to(exclude) and _is_batch_output(path)):
             continue
         if path.name.endswith(".gpkg-journal") or path.name.endswith(".gpkg-wal") or path.name.endswith(".gpkg-shm"):
             continue
@@ -166,7 +176,27 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
             unique_drafts.append((parts, fields))
     drafts = unique_drafts
     names = _unique_names(drafts)
-    return [Unit(name=name, **fields) for name, (_, fields) in zip(names, drafts)]
+    units = [Unit(name=name, **fields) for name, (_, fields) in zip(names, drafts)]
+    _refuse_outputs_over_inputs(units, plan.out_dir)
+    return units
+
+
+def _refuse_outputs_over_inputs(units: list, out_dir: Path) -> None:
+    """An unusable plan (exit 2): some unit's output would be one of the inputs' files."""
+    from ..errors import ConfigError, OutputError
+    from ..io import check_output_paths
+    from .fingerprints import RECORD_SUFFIX
+
+    inputs = sorted({unit.path for unit in units}, key=str)
+    for unit in units:
+        for target in (out_dir / f"{unit.name}.gpkg", out_dir / f"{unit.name}.html", out_dir / f"{unit.name}{RECORD_SUFFIX}"):
+            try:
+                check_output_paths([("output", target)], inputs)
+            except OutputError:
+                raise ConfigError(
+                    f"The output {str(target)!r} of input {unit.display!r} would replace an input file; "
+                    "an input is never written over. Choose an --out-dir (or out_dir) other than the inputs' folder."
+                ) from None
 
 
 def _spec_drafts(spec: InputSpec, out_dir: Path) -> list[tuple[tuple[str, ...], dict]]:

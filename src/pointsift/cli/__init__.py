@@ -18,6 +18,7 @@ import click
 from .._version import __version__
 from ..config import caller
 from ..errors import ConfigError, PointsiftError
+from ..terminal import echo, printable
 from .batch import batch
 from .campaigns import campaigns
 from .describe import describe
@@ -41,6 +42,15 @@ def _setup_logging(verbose: int, quiet: bool) -> None:
     elif verbose:
         level = logging.DEBUG if verbose > 1 else logging.INFO
     logging.basicConfig(level=level, format="%(levelname)s %(name)s: %(message)s")
+    for handler in logging.getLogger().handlers:
+        handler.setFormatter(_PrintableFormatter("%(levelname)s %(name)s: %(message)s"))
+
+
+class _PrintableFormatter(logging.Formatter):
+    """Log lines with control characters escaped, like everything else printed."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        return printable(super().format(record), keep_newlines=True)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
@@ -68,11 +78,15 @@ for _command in (screen, describe, batch, campaigns):
 
 def main(argv=None) -> int:
     """Entry point: run the CLI and map exceptions to exit codes."""
+    from ..lifetime import terminate_as_interrupt
+
     verbose = any(a in ("-v", "-vv", "--verbose") for a in (argv if argv is not None else sys.argv[1:]))
     try:
-        code = cli.main(args=argv, prog_name="pointsift", standalone_mode=False)
+        # SIGTERM (timeout, schedulers, kill) stops a run as Ctrl-C does: temporary files removed, exit 130
+        with terminate_as_interrupt():
+            code = cli.main(args=argv, prog_name="pointsift", standalone_mode=False)
     except click.exceptions.Abort:
-        click.echo("Stopped.", err=True)
+        echo("Stopped.", err=True)
         return EXIT_INTERRUPTED
     except click.exceptions.ClickException as exc:
         exc.show()
@@ -80,23 +94,23 @@ def main(argv=None) -> int:
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except ConfigError as exc:
-        click.echo(f"Error: {exc}", err=True)
+        echo(f"Error: {exc}", err=True, lines=True)
         return EXIT_USAGE
     except PointsiftError as exc:
-        click.echo(f"Error: {exc}", err=True)
+        echo(f"Error: {exc}", err=True, lines=True)
         return EXIT_DATA
     except KeyboardInterrupt:
-        click.echo("Stopped.", err=True)
+        echo("Stopped.", err=True)
         return EXIT_INTERRUPTED
     except OSError as exc:  # disk full, permissions, a vanished folder
-        click.echo(f"Error: {exc}. Check the path, its permissions and the free disk space.", err=True)
+        echo(f"Error: {exc}. Check the path, its permissions and the free disk space.", err=True)
         return EXIT_DATA
     except Exception as exc:  # an internal error: say so plainly
-        click.echo(f"Internal error: {type(exc).__name__}: {exc}", err=True)
+        echo(f"Internal error: {type(exc).__name__}: {exc}", err=True)
         if verbose:
             traceback.print_exc()
         else:
-            click.echo("Run again with -v to see the traceback, and report it with the command you ran.", err=True)
+            echo("Run again with -v to see the traceback, and report it with the command you ran.", err=True)
         return EXIT_DATA
     # ctx.exit(n) inside a command (batch: 3 when some inputs failed) comes back here as n
     return code if isinstance(code, int) else EXIT_OK

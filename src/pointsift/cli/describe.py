@@ -12,7 +12,8 @@ from ..errors import ConfigError
 from ..record import run_record
 from ..vocabulary import SUSPECT, direction_words
 from .options import config_from_options, describe_config_from_options, pop_table_values, table_options
-from .screen import check_report_paths
+from ..terminal import echo
+from .screen import check_outputs
 
 __all__ = ["describe"]
 
@@ -25,51 +26,51 @@ def _echo_description(description, value_column: str, where: str) -> None:
     prepared = description.prepared
     s = description.summary
     n_rows = prepared.n
-    click.echo(f"Described {n_rows} rows of {value_column!r} in {where}: {s.n} used, {n_rows - s.n} unscreened.")
-    click.echo(f"Distances in {prepared.work_crs.name} ({prepared.work_crs.to_string()}).")
+    echo(f"Described {n_rows} rows of {value_column!r} in {where}: {s.n} used, {n_rows - s.n} unscreened.")
+    echo(f"Distances in {prepared.work_crs.name} ({prepared.work_crs.to_string()}).")
     for note in prepared.notes:
-        click.echo(f"Note: {note}")
-    click.echo(
+        echo(f"Note: {note}")
+    echo(
         f"Values: mean {_number(s.mean)}, median {_number(s.median)}, sd {_number(s.sd)} "
         f"and variance {_number(s.variance)} (n - 1 denominator)"
     )
-    click.echo(
+    echo(
         f"  min {_number(s.min)}, 5% {_number(s.p05)}, 25% {_number(s.p25)}, 75% {_number(s.p75)}, "
         f"95% {_number(s.p95)}, max {_number(s.max)} (percentiles by linear interpolation); IQR {_number(s.iqr)}"
     )
-    click.echo(f"  robust sd: IQR/1.349 = {_number(s.robust_sd_iqr)}, 1.4826 x MAD = {_number(s.robust_sd_mad)}")
-    click.echo(
+    echo(f"  robust sd: IQR/1.349 = {_number(s.robust_sd_iqr)}, 1.4826 x MAD = {_number(s.robust_sd_mad)}")
+    echo(
         f"  skewness {_number(s.skewness)} (adjusted Fisher-Pearson G1), "
         f"excess kurtosis {_number(s.kurtosis)} (adjusted G2)"
     )
     if description.shift is not None:
         shift = description.shift
         kept = shift.without_suspects
-        click.echo(
+        echo(
             f"Without the {shift.n_suspects} suspect row{'s' if shift.n_suspects != 1 else ''}: "
             f"mean {_number(kept.mean)} (moves {shift.mean_shift:+.4g}), sd {_number(kept.sd)} (moves {shift.sd_shift:+.4g})"
         )
     if description.unscreened:
-        click.echo("Unscreened, by reason:")
+        echo("Unscreened, by reason:")
         for reason, count in list(description.unscreened.items())[:5]:
-            click.echo(f"  {count} x {reason}")
-    click.echo("")
-    click.echo(description.stem_leaf.text())
-    click.echo("")
+            echo(f"  {count} x {reason}")
+    echo("")
+    echo(description.stem_leaf.text(), lines=True)
+    echo("")
     strips = description.strips
-    click.echo(f"Strips (flagged when |u| > {strips.flag_u:g}; u is calibrated for each strip's own n):")
+    echo(f"Strips (flagged when |u| > {strips.flag_u:g}; u is calibrated for each strip's own n):")
     table = strips.table
     ids = prepared.ids
     for direction, width in strips.widths.items():
         part = table[table["direction"] == direction]
         judged = int(part["u"].notna().sum())
         flagged = part[part["flagged"]]
-        click.echo(
+        echo(
             f"  {direction_words(direction, form='strips')}, {width:g} m wide: {len(part)} strips, "
             f"{judged} judged, {len(flagged)} flagged"
         )
         for _, row in flagged.iterrows():
-            click.echo(
+            echo(
                 f"    strip {row['strip']}: n {row['n']}, mean {_number(row['mean'])}, median {_number(row['median'])}, "
                 f"u {row['u']:+.2f}; extreme value {_number(row['extreme_value'])} at {ids[int(row['extreme_row'])]}"
             )
@@ -77,14 +78,14 @@ def _echo_description(description, value_column: str, where: str) -> None:
     if description.trend is not None:
         share, robust = info["variance_explained"], info["robust_variance_explained"]
         if math.isfinite(share) and math.isfinite(robust):
-            click.echo(
+            echo(
                 f"Trend: {info['method']} explains {100 * share:.1f} % of the variance "
                 f"(robust share {100 * robust:.1f} %)."
             )
         else:
-            click.echo(f"Trend: {info['method']}; the share of variance explained is undefined (the values do not vary).")
+            echo(f"Trend: {info['method']}; the share of variance explained is undefined (the values do not vary).")
     else:
-        click.echo(f"Trend: {info.get('note', 'none requested')}.")
+        echo(f"Trend: {info.get('note', 'none requested')}.")
 
 
 @click.command()
@@ -107,9 +108,11 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
     layer, x_column, y_column = where["layer"], where["x"], where["y"]
     settings = describe_config_from_options(options)
     config = config_from_options(options)
-    check_report_paths(report_path, summary_json_path, overwrite)
     if figures_dir is not None and not Path(figures_dir).is_dir():
         raise ConfigError(f"--figures folder {figures_dir!r} does not exist. Create it first or choose another folder.")
+    figures = [("--figures", Path(figures_dir) / name) for _, name in _FIGURE_FILES] if figures_dir is not None else []
+    check_outputs(input_path, [("--out", out_path), ("--report", report_path), ("--summary-json", summary_json_path)],
+                  overwrite, figures=figures)
     result, prepared, source, suspects, where = _read(input_path, layer, x_column, y_column, config, with_screen)
     description = describe_prepared(
         prepared,
@@ -155,7 +158,7 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
         layers["run_info"] = run_info_table(record)
         written = write_geopackage(out_path, layers, overwrite=overwrite, protect=(os.fspath(input_path),))
         if not quiet:
-            click.echo(f"Wrote {written} (layers {', '.join(layers)}).")
+            echo(f"Wrote {written} (layers {', '.join(layers)}).")
     if report_path is not None or summary_json_path is not None:
         from ..report import build_report
 
@@ -163,7 +166,7 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
         report = build_report(description=description, run_info=record if result is None else None)
         for path in report.write(report_path, summary_json_path, protect=(os.fspath(input_path),)).values():
             if not quiet:
-                click.echo(f"Wrote {path}.")
+                echo(f"Wrote {path}.")
 
 
 def _read(input_path, layer, x_column, y_column, config, with_screen):
@@ -171,7 +174,7 @@ def _read(input_path, layer, x_column, y_column, config, with_screen):
     from ..io import read_points
     from ..prepare import prepare
 
-    frame, source = read_points(input_path, layer=layer, x=x_column, y=y_column, crs=config.crs)
+    frame, source = read_points(input_path, layer=layer, x=x_column, y=y_column, crs=config.crs, thousands=config.thousands)
     where = f"layer {source.layer!r} of {source.path!r}" if source.layer else repr(source.path)
     result = suspects = None
     if "screen_status" in frame.columns:
@@ -200,5 +203,5 @@ def _save_figures(description, figures_dir, quiet: bool) -> None:
             description.figures[name].savefig(os.path.join(figures_dir, file_name), dpi=150)
             saved.append(file_name)
     if not quiet and saved:
-        click.echo(f"Wrote {', '.join(saved[:-1])} and {saved[-1]} to {figures_dir}." if len(saved) > 1
+        echo(f"Wrote {', '.join(saved[:-1])} and {saved[-1]} to {figures_dir}." if len(saved) > 1
                    else f"Wrote {saved[0]} to {figures_dir}.")
