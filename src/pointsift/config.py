@@ -75,7 +75,8 @@ def _check_crs_text(text, option: str) -> None:
     try:
         CRS.from_user_input(text)
     except PyprojCRSError:
-        raise ConfigError(f"{option} {text!r} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.") from None
+        raise OptionError(f"{option} {text!r} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.",
+                          option=option.lstrip("-").replace("-", "_"), problem="is not a CRS pyproj knows.") from None
 
 
 def spell(name: str, example=None) -> str:
@@ -155,7 +156,7 @@ OPTIONS: dict[str, Option] = {
         Option("lag_width", "length", "Width of the variogram lag classes (0, W], (W, 2W], ..., e.g. 500m",
                minimum=0.0, min_open=True, default_text="from the extent and spacing"),
         Option("thousands", "choice", "',' says commas in text columns group thousands (\"1,234.5\")", choices=(",",),
-               default_text="decided per column from its cells", commands=()),
+               default_text="decided per column from its cells"),
         # --- hydrogeological context (docs/methods.md, "The land surface and the well")
         Option("quantity", "choice", "What the values are: water-level elevation, depth to water, concentration, other",
                default="level", choices=QUANTITIES),
