@@ -540,7 +540,7 @@ def test_invalid_crs_is_a_usage_problem(tmp_path, capfd):
     for option in ("--crs", "--work-crs"):
         extra = [] if option == "--crs" else ["--crs", "EPSG:32633"]
         code, text = run(["screen", source, "--value", "level_m", "--out", tmp_path / "o.gpkg", *extra, option, "EPSG:999999", *FAST], capfd)
-        assert code == 2 and f"{option} 'EPSG:999999' is not a CRS pyproj knows" in text
+        assert code == 2 and re.search(rf"{option} '?EPSG:999999'? is not a CRS pyproj knows", text), text
 
 
 def test_control_characters_in_ids_are_escaped_on_the_terminal(tmp_path, capfd):

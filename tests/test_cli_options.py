@@ -56,7 +56,7 @@ def test_plan_tables_accept_exactly_the_table_keys(tmp_path):
     for name in plan_keys("defaults"):
         option = OPTIONS[name]
         value = {"layers": '"all"', "sentinels": "[-9999]", "k": "12", "permutations": "99", "graph": '"knn"',
-                 "detrend": '"none"', "thousands": '","', "suspect_z": "4.0", "review_z": "3.0", "seed": "1",
+                 "detrend": '"none"', "thousands": '","', "crs": '"EPSG:32633"', "work_crs": '"EPSG:32633"', "suspect_z": "4.0", "review_z": "3.0", "seed": "1",
                  "lag_count": "6", "min_neighbours": "4", "id": '"well"', "x": '"e"', "y": '"n"',
                  "quantity": '"level"', "land_surface_use": '"depth"', "transform": '"none"'}.get(
             name, samples.get(option.kind))

@@ -65,7 +65,7 @@ TRANSFORMS = ("none", "log", "auto")
 #: How the land surface enters the prediction of a water level.
 LAND_SURFACE_USES = ("auto", "depth", "drift", "none")
 
-def _check_crs_text(text, option: str) -> None:
+def _check_crs_text(text, name: str) -> None:
     """A CRS option pyproj cannot read is a usage problem, found before any work."""
     if text is None or not isinstance(text, str):
         return
@@ -75,8 +75,8 @@ def _check_crs_text(text, option: str) -> None:
     try:
         CRS.from_user_input(text)
     except PyprojCRSError:
-        raise OptionError(f"{option} {text!r} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.",
-                          option=option.lstrip("-").replace("-", "_"), problem="is not a CRS pyproj knows.") from None
+        raise OptionError(f"{spell(name, text)} is not a CRS pyproj knows. Use a code such as EPSG:4326 or EPSG:32633.",
+                          option=name, problem="is not a CRS pyproj knows.") from None
 
 
 def spell(name: str, example=None) -> str:
@@ -415,8 +415,8 @@ class ScreenConfig:
                 option="value", problem="must name the column holding the measurements.",
             )
         _check_fields(self)
-        for name, option in (("crs", "--crs"), ("work_crs", "--work-crs")):
-            _check_crs_text(getattr(self, name), option)
+        for name in ("crs", "work_crs"):
+            _check_crs_text(getattr(self, name), name)
         for name in ("sentinels", "coincident_tolerance", "k", "permutations", "seed", "fdr", "suspect_z",
                      "review_z", "detrend"):
             if getattr(self, name) is None:
