@@ -23,6 +23,7 @@ import pandas as pd
 
 from .config import spell
 from .errors import InputError, OutputError, plain_library_text
+from .lifetime import process_alive
 from .tables import LOCATION_REASONS, READ_NOTES, free_name, points_from_columns, read_csv
 
 __all__ = [
@@ -396,7 +397,7 @@ def remove_stale_partials(folder: str | os.PathLike) -> list[str]:
             pid = int(name[: name.index(PARTIAL_SUFFIX)].rsplit(".", 2)[-2])
         except (ValueError, IndexError):
             continue
-        if _process_alive(pid):
+        if process_alive(pid):
             continue
         try:
             item.unlink()
@@ -406,16 +407,6 @@ def remove_stale_partials(folder: str | os.PathLike) -> list[str]:
     return removed
 
 
-def _process_alive(pid: int) -> bool:
-    if pid <= 0:
-        return False
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True  # someone else's live process
-    return True
 
 
 def _temporary_beside(out_path: Path) -> str:
