@@ -234,3 +234,92 @@ def test_describe_and_screen_give_the_same_variogram(tmp_path, demo, options):
     assert a["model"]["nugget"] is not None
     for key in ("model", "directional_models", "lag_edges", "anisotropy", "values"):
         assert a[key] == b[key], key
+
+
+# --------------------------------------------------------------------------- skew, transform, context (issue 11)
+
+
+def _run_info(out):
+    import json
+
+    table = pyogrio.read_dataframe(out, layer="run_info")
+    return {k: json.loads(v) if isinstance(v, str) and v[:1] in "{[" else v for k, v in zip(table.iloc[:, 0], table.iloc[:, 1])}
+
+
+def test_describe_says_a_strongly_skewed_positive_variable_and_offers_log(meuse_gpkg, tmp_path):
+    scipy_stats = pytest.importorskip("scipy.stats")
+    zinc = gpd.read_file(meuse_gpkg)["zinc"].to_numpy(float)
+    # Reference: scipy.stats.skew(bias=False), the adjusted Fisher-Pearson G1 (meuse zinc, about 1.4).
+    reference = scipy_stats.skew(zinc, bias=False)
+    out = tmp_path / "d.gpkg"
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert f"strongly skewed (skewness {reference:.2f}, all positive)" in result.output
+    assert "--transform log" in result.output
+    record = _run_info(out)
+    assert record["described_scale"]["strongly_skewed_positive"] is True
+    assert record["described_scale"]["skewness"] == pytest.approx(reference, abs=5e-4)
+    assert record["described_scale"]["scale"] == "the values"
+
+
+def test_describe_with_transform_log_describes_the_logs_and_keeps_original_units(meuse_gpkg, tmp_path):
+    scipy_stats = pytest.importorskip("scipy.stats")
+    zinc = gpd.read_file(meuse_gpkg)["zinc"].to_numpy(float)
+    out = tmp_path / "d.gpkg"
+    result = CliRunner().invoke(cli, ["describe", str(meuse_gpkg), "--value", "zinc", "--transform", "log",
+                                      "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    assert "Described on the log scale (transform log" in result.output
+    table = pyogrio.read_dataframe(out, layer="summary").set_index("figure")
+    # the original units stay in "all" (R sf documentation: median zinc 326); the logs beside them
+    assert table.loc["median", "all"] == 326.0
+    # Reference: numpy's log and scipy's skew of the same values.
+    assert table.loc["mean", "log_of_values"] == pytest.approx(np.log(zinc).mean(), rel=1e-12)
+    assert table.loc["skewness", "log_of_values"] == pytest.approx(scipy_stats.skew(np.log(zinc), bias=False), rel=1e-9)
+    # the strips describe the logs: their means are means of log(zinc) (pandas recomputation)
+    strips = pyogrio.read_dataframe(out, layer="strips")
+    points = pyogrio.read_dataframe(out, layer="points")
+    family = strips[strips["direction"] == 90.0].set_index("strip")
+    grouped = np.log(points["zinc"]).groupby(points["strip_90"]).mean()
+    np.testing.assert_allclose(family.loc[grouped.index, "mean"], grouped.to_numpy(), rtol=1e-12)
+    assert _run_info(out)["described_scale"]["scale"].startswith("log of the values")
+
+
+def test_transform_auto_logs_a_skewed_concentration_but_not_a_level(meuse_gpkg):
+    prepared = prepare(gpd.read_file(meuse_gpkg), ScreenConfig(value="zinc"))
+    concentration = describe(prepared, config=ScreenConfig(value="zinc", transform="auto", quantity="concentration"))
+    assert concentration.judged_summary is not None and concentration.scale["scale"].startswith("log")
+    level = describe(prepared, config=ScreenConfig(value="zinc", transform="auto"))
+    assert level.judged_summary is None and level.scale["scale"] == "the values"
+    assert any("consider transform log" in note for note in level.notes)
+
+
+def test_a_symmetric_variable_gets_no_skew_note_and_log_leaves_out_non_positive_values():
+    wells = build_wells(80, seed=2)  # a plane plus small noise: not skewed
+    prepared = prepare(wells, ScreenConfig(value="level_m"))
+    plain = describe(prepared, config=ScreenConfig(value="level_m"))
+    assert plain.scale["strongly_skewed_positive"] is False and not plain.notes
+    wells.loc[[3, 5], "level_m"] = [0.0, -2.0]
+    logged = describe(prepare(wells, ScreenConfig(value="level_m")), config=ScreenConfig(value="level_m", transform="log"))
+    assert logged.scale["rows_not_positive"] == 2 and logged.judged_summary.n == 78
+    assert "2 values not positive left out" in logged.notes[0]
+    assert logged.summary.n == 80  # the original-unit summary keeps every usable row
+
+
+def test_describe_uses_the_context_columns():
+    wells = build_wells(60, seed=4)
+    wells["ground"] = wells["level_m"] + 10.0 + np.arange(60) % 5  # depth to water 10-14 m
+    wells["site"] = [f"S{i // 3}" if i < 9 else f"W{i}" for i in range(60)]  # three sites of three completions
+    wells["unit"] = np.where(np.arange(60) < 20, "upper", "lower")
+    wells.loc[59, "unit"] = None
+    config = ScreenConfig(value="level_m", ground_elevation="ground", site="site", aquifer="unit", units="m")
+    d = describe(prepare(wells, config), config=config)
+    depth = wells["ground"] - wells["level_m"]
+    # Reference: pandas median and quartiles of land surface minus level.
+    assert d.depth_summary.median == pytest.approx(depth.median()) and d.depth_summary.p25 == pytest.approx(depth.quantile(0.25))
+    assert "depth_to_water" in d.summary_table().columns
+    assert d.context_info["sites_with_several_records"] == 3
+    assert d.context_info["aquifer_units"] == {"lower": 39, "upper": 20, "(none)": 1}
+    text = " ".join(d.notes)
+    assert "Depth to water (land surface minus level) of 60 rows: median 12.00 m" in text
+    assert "3 with several records (9 rows)" in text and "Aquifer units (2): lower 39, upper 20, (none) 1" in text

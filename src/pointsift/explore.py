@@ -10,6 +10,7 @@ and writes it with :func:`description_layers`.
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 from collections import Counter
 from dataclasses import dataclass, field
@@ -27,7 +28,7 @@ from .methods.summary import Summary, SummaryShift, global_summary, summary_shif
 from .methods.trend import PolishSurface, TrendSurface
 from .prepare import Prepared
 
-__all__ = ["Description", "describe", "description_layers", "TREND_CHOICES", "STRIPS_LAYER"]
+__all__ = ["Description", "describe", "describe_scale", "description_layers", "TREND_CHOICES", "STRIPS_LAYER"]
 
 log = logging.getLogger(__name__)
 
@@ -77,6 +78,23 @@ class Description:
     screen : ScreenResult or None
         The screen made alongside (``describe --with-screen``).
 
+    scale : dict
+        The described scale (``run_info["described_scale"]``): skewness,
+        whether the values are strongly skewed and positive, the transform
+        option and the scale the stem-and-leaf, strips, trend and variogram
+        describe.
+    judged_summary : Summary or None
+        Summary of the log values, when they are described on the log scale
+        (``summary`` stays in the original units).
+    depth_summary : Summary or None
+        Summary of the depth to water (land surface minus level) when a
+        water level comes with a ground elevation.
+    context_info : dict
+        What the context columns hold (``run_info["context"]``): sites with
+        several completions, aquifer units, well depths.
+    notes : tuple of str
+        For the user (skew, depth to water, grouping).
+
     The :attr:`findings` (every number a report shows) are made from these
     on first use.
     """
@@ -97,6 +115,11 @@ class Description:
     seed: int = 0
     screen: object = None
     display_options: dict = field(default_factory=dict)
+    scale: dict = field(default_factory=lambda: {"scale": "the values"})
+    judged_summary: Summary | None = None
+    depth_summary: Summary | None = None
+    context_info: dict = field(default_factory=dict)
+    notes: tuple[str, ...] = ()
 
     @cached_property
     def findings(self):
@@ -114,6 +137,10 @@ class Description:
         table = pd.DataFrame({"figure": list(Summary.names()), "all": list(self.summary.as_dict().values())})
         if self.shift is not None:
             table["without_suspects"] = list(self.shift.without_suspects.as_dict().values())
+        if self.judged_summary is not None:
+            table["log_of_values"] = list(self.judged_summary.as_dict().values())
+        if self.depth_summary is not None:
+            table["depth_to_water"] = list(self.depth_summary.as_dict().values())
         return table
 
 
@@ -134,6 +161,8 @@ def describe(
     lag_width: float | None = None,
     seed: int | None = None,
     screen=None,
+    config=None,
+    where: str = "the layer",
 ) -> Description:
     """Describe a prepared layer: summary, stem-and-leaf, strips and trend.
 
@@ -166,6 +195,15 @@ def describe(
     screen : ScreenResult, optional
         A screen of the same layer: its statuses, flags and local evidence
         join the findings.
+    config : ScreenConfig, optional
+        Its ``transform`` (``"log"``, or ``"auto"``: log for a strongly
+        skewed positive variable other than a level) chooses the scale the
+        stem-and-leaf, strips, trend and variogram describe; its context
+        columns (ground elevation, well depth, site, aquifer) add the depth
+        to water and a note on the grouping (see :func:`describe_scale`).
+        Without it: the values, no context.
+    where : str
+        How to name the layer in messages about the context columns.
 
     Returns
     -------
@@ -188,13 +226,21 @@ def describe(
         )
     values = np.where(usable, prepared.values, np.nan)
     summary = global_summary(values[usable])
+    scale, described, judged_summary, depth_summary, context_info, notes = describe_scale(prepared, config, where)
+    original = prepared
+    if described is not None:  # the log scale: rows that are not positive cannot be described on it
+        if not np.isfinite(described).any():
+            raise InputError(f"No value is positive, so nothing can be described on the log scale; "
+                             f"pass {spell('transform', 'none')}.")
+        prepared = dataclasses.replace(prepared, values=described, usable=np.isfinite(described))
+        usable, values = prepared.usable, described
     shift = None
     if suspect_mask is not None:
         mask = np.asarray(suspect_mask, dtype=bool)
         if mask.shape != values.shape:
             raise InputError(f"suspect_mask has {mask.size} entries for {values.size} rows; pass one per row.")
-        shift = summary_shift(values[usable], mask[usable])
-    unscreened = dict(Counter(str(r) for r in prepared.unscreened_reason[~usable]).most_common())
+        shift = summary_shift(original.values[original.usable], mask[original.usable])
+    unscreened = dict(Counter(str(r) for r in original.unscreened_reason[~original.usable]).most_common())
     stem_leaf = stem_and_leaf_table(values[usable], stem_unit, split)
     strips = strip_summary(
         prepared.xy[:, 0], prepared.xy[:, 1], values, directions, strip_width, min_n=min_strip_n
@@ -220,7 +266,7 @@ def describe(
             drawn["variogram_cloud"] = plot_variogram_cloud(variogram.empirical)
             drawn["sqrt_difference_cloud"] = plot_sqrt_difference_cloud(variogram.empirical)
     return Description(
-        prepared=prepared,
+        prepared=original,
         summary=summary,
         shift=shift,
         unscreened=unscreened,
@@ -236,7 +282,140 @@ def describe(
         seed=seed,
         screen=screen,
         display_options={"bin_width": bin_width, "stem_unit": stem_unit, "split": split},
+        scale=scale,
+        judged_summary=judged_summary,
+        depth_summary=depth_summary,
+        context_info=context_info,
+        notes=notes,
     )
+
+
+def describe_scale(prepared: Prepared, config=None, where: str = "the layer"):
+    """The scale a description describes, and what the context columns add.
+
+    Skew is measured as the screen measures it
+    (:func:`pointsift.judging.skewness`, the adjusted Fisher-Pearson G1 of
+    ``scipy.stats.skew(bias=False)``); a positive variable with G1 of at
+    least :data:`pointsift.judging.STRONG_SKEW` is strongly skewed, and the
+    note offers ``transform log`` (or ``auto``). ``transform="log"`` always
+    describes the log values; ``"auto"`` does so for a strongly skewed
+    positive variable that is not a water level (the screen's rule, so
+    ``describe`` and ``screen`` judge alike). A water level with a ground
+    elevation is also summarised as depth to water; sites with several
+    completions and aquifer units are counted and noted.
+
+    Parameters
+    ----------
+    prepared : Prepared
+        The layer.
+    config : ScreenConfig, optional
+        Transform and context options (None: the values, no context).
+    where : str
+        How to name the layer in messages.
+
+    Returns
+    -------
+    tuple
+        ``(scale, described, judged_summary, depth_summary, context_info, notes)``:
+        the scale record, the log values per row (NaN where not positive or
+        unusable; None when the values themselves are described), the summary
+        of the log values (or None), the depth-to-water summary (or None),
+        the context record and the notes.
+    """
+    from .judging import STRONG_SKEW, skewness
+
+    usable = prepared.usable
+    values = np.where(usable, prepared.values, np.nan)
+    transform = getattr(config, "transform", "none") or "none"
+    quantity = getattr(config, "quantity", "level") or "level"
+    skew = skewness(values)
+    positive = bool(usable.any() and (values[usable] > 0).all())
+    strongly = bool(np.isfinite(skew) and skew >= STRONG_SKEW and positive)
+    scale = {"quantity": quantity, "transform_option": transform,
+             "skewness": None if not np.isfinite(skew) else round(skew, 3), "strongly_skewed_positive": strongly,
+             "scale": "the values"}
+    notes: list[str] = []
+    described = judged_summary = None
+    if transform == "log" or (transform == "auto" and strongly and quantity != "level"):
+        described = np.where(usable & (values > 0), np.log(np.where(values > 0, values, 1.0)), np.nan)
+        judged_summary = global_summary(described[np.isfinite(described)])
+        scale["scale"] = "log of the values (natural log); the summary also in the original units"
+        dropped = int((usable & ~np.isfinite(described)).sum())
+        scale["rows_not_positive"] = dropped
+        notes.append(
+            f"Described on the log scale (transform {transform}"
+            + (f", skewness {skew:.2f}" if np.isfinite(skew) else "") + "): stem-and-leaf, strips, trend and variogram "
+            f"of the natural log; skewness of the logs {_fmt(judged_summary.skewness)}"
+            + (f"; {dropped} value{'s' if dropped != 1 else ''} not positive left out" if dropped else "") + "."
+        )
+    elif strongly:
+        notes.append(
+            f"The values are strongly skewed (skewness {skew:.2f}, all positive): a symmetric screen flags the long "
+            "tail; consider transform log (--transform log, or auto)."
+        )
+    if config is None:
+        return scale, described, judged_summary, None, {}, tuple(notes)
+    depth_summary, context_info, context_notes = _context_description(prepared, config, where, quantity)
+    return scale, described, judged_summary, depth_summary, context_info, tuple(notes + context_notes)
+
+
+def _fmt(value) -> str:
+    return "n/a" if value is None or not np.isfinite(value) else f"{value:.2f}"
+
+
+def _context_description(prepared: Prepared, config, where: str, quantity: str):
+    """Depth to water, completions per site and aquifer units, from the context columns."""
+    from .context import read_context
+
+    context = read_context(prepared.frame, config, prepared.xy, prepared.work_crs, where=where)
+    usable = prepared.usable
+    info = dict(context.record)
+    notes: list[str] = []
+    depth_summary = None
+    units = f" {config.units}" if config.units else ""
+    with_ground = usable & np.isfinite(context.ground)
+    if quantity == "level" and with_ground.any():
+        dtw = context.ground[with_ground] - prepared.values[with_ground]
+        depth_summary = global_summary(dtw)
+        above = int((dtw < 0).sum())
+        info["depth_to_water_rows"] = int(with_ground.sum())
+        notes.append(
+            f"Depth to water (land surface minus level) of {with_ground.sum()} rows: median "
+            f"{_fmt(depth_summary.median)}{units}, 25-75 % {_fmt(depth_summary.p25)} to {_fmt(depth_summary.p75)}{units}, "
+            f"robust sd {_fmt(depth_summary.robust_sd_mad)}{units} against {_fmt(global_summary(prepared.values[usable]).robust_sd_mad)}"
+            f"{units} for the levels"
+            + (f"; {above} level{'s' if above != 1 else ''} above land surface" if above else "") + "."
+        )
+    if config.site:
+        site = np.where(usable, context.site, "")
+        named = site[site != ""]
+        if named.size:
+            counts = pd.Series(named).value_counts()
+            nested = counts[counts >= 2]
+            info["sites"] = int(counts.size)
+            info["sites_with_several_records"] = int(nested.size)
+            notes.append(
+                f"Sites: {counts.size} named; {nested.size} with several records ({int(nested.sum())} rows), which the "
+                "screen treats as separate completions when their depths or units differ (nested wells)."
+            )
+        info["rows_without_site"] = int((usable & (context.site == "")).sum())
+    if config.aquifer:
+        unit = np.where(usable, context.aquifer, "")
+        counts = pd.Series(unit[usable]).replace("", "(none)").value_counts()
+        info["aquifer_units"] = {str(k): int(v) for k, v in counts.items()}
+        shown = ", ".join(f"{k} {v}" for k, v in list(counts.items())[:6]) + (", ..." if counts.size > 6 else "")
+        notes.append(
+            f"Aquifer units ({int((counts.index != '(none)').sum())}): {shown}; the screen compares wells within "
+            "their unit (wells of no unit with the nearest wells of any unit)."
+        )
+    if config.well_depth:
+        depth = context.well_depth[usable & np.isfinite(context.well_depth)]
+        if depth.size:
+            notes.append(
+                f"Well depth known for {depth.size} of {int(usable.sum())} rows: median {np.median(depth):.4g}{units}, "
+                f"5-95 % {np.percentile(depth, 5):.4g} to {np.percentile(depth, 95):.4g}{units}."
+            )
+    return depth_summary, info, notes
 
 
 def description_layers(description: Description) -> dict:
@@ -257,7 +436,11 @@ def description_layers(description: Description) -> dict:
     fit = description.trend
     # over every row, also when the surface was fitted on a sample (spatial_structure)
     residual = description.structure.detrended if description.structure is not None else None
-    points["trend_fitted"] = prepared.values - residual if fit is not None else np.nan
+    described = prepared.values
+    if description.judged_summary is not None:  # described on the log scale: the trend is of the logs
+        described = np.where(prepared.usable & (prepared.values > 0),
+                             np.log(np.where(prepared.values > 0, prepared.values, 1.0)), np.nan)
+    points["trend_fitted"] = described - residual if fit is not None else np.nan
     points["trend_residual"] = residual if fit is not None else np.nan
     trend_rows = [("method", description.trend_info.get("method", "none"))]
     for key in ("variance_explained", "robust_variance_explained", "note"):

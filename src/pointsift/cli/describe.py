@@ -28,7 +28,7 @@ def _echo_description(description, value_column: str, where: str) -> None:
     n_rows = prepared.n
     echo(f"Described {n_rows} rows of {value_column!r} in {where}: {s.n} used, {n_rows - s.n} unscreened.")
     echo(f"Distances in {prepared.work_crs.name} ({prepared.work_crs.to_string()}).")
-    for note in prepared.notes:
+    for note in (*prepared.notes, *description.notes):
         echo(f"Note: {note}")
     echo(
         f"Values: mean {_number(s.mean)}, median {_number(s.median)}, sd {_number(s.sd)} "
@@ -130,6 +130,8 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
         value_label=config.value,
         seed=config.seed,
         screen=result,
+        config=config,
+        where=where,
     )
     quiet = bool(ctx.obj.get("quiet"))
     if not quiet:
@@ -145,6 +147,8 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
         describe=settings.as_record(),
         strip_widths_m={f"{d:g}": w for d, w in description.strips.widths.items()},
         trend=description.trend_info,
+        described_scale=description.scale,
+        **({"context": description.context_info} if description.context_info else {}),
         variogram=(
             {"values": description.variogram_basis, **description.variogram.run_info()}
             if description.variogram is not None else {"note": "no variogram: too few usable points"}
