@@ -49,14 +49,8 @@ from scipy.optimize import least_squares
 
 from ..errors import ConfigError, InputError
 from ..vocabulary import direction_words
-from .lagpairs import (
-    DEFAULT_DIRECTIONS,
-    PairSet,
-    _as_xy,
-    axial_difference,
-    find_pairs,
-    point_spacing,
-)
+from .lagpairs import DEFAULT_DIRECTIONS
+from .pairsearch import PairSet, _as_xy, axial_difference, find_pairs, point_spacing
 
 __all__ = [
     "ESTIMATORS",
