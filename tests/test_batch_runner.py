@@ -132,12 +132,9 @@ def test_jobs_2_writes_identical_attribute_tables_to_jobs_1(tmp_path):
     assert fingerprints[0] == fingerprints[1]
 
 
-@pytest.mark.parametrize(
-    "jobs, presses",
-    [(1, 1), pytest.param(1, 2, marks=pytest.mark.slow), pytest.param(2, 1, marks=pytest.mark.slow),
-     pytest.param(2, 2, marks=pytest.mark.slow)],
-)
+@pytest.mark.parametrize("jobs, presses", [(1, 1), pytest.param(2, 2, marks=pytest.mark.slow)])
 def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs, presses):
+    """Real signals to a real process (end to end); the moments are pinned down in the in-process tests below."""
     import signal
     import subprocess
     import sys
@@ -166,7 +163,7 @@ def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs
     for unit in index.index[outcomes == "done"]:
         assert len(pyogrio.read_dataframe(out_dir / f"{unit}.gpkg", layer="screened")) == 400
     for unit in index.index[outcomes == "not-run"]:
-        assert not (out_dir / f"{unit}.gpkg").exists()
+        assert not (out_dir / f"{unit}.gpkg").exists() and not (out_dir / f"{unit}.batch.json").exists()
     leftovers = [p.name for p in out_dir.iterdir()
                  if not (p.name.endswith(".gpkg") or p.name.endswith(".batch.json") or p.name == "batch-index.csv")]
     assert leftovers == []
@@ -177,6 +174,104 @@ def test_ctrl_c_keeps_finished_outputs_and_leaves_nothing_partial(tmp_path, jobs
     again = read_index(out_dir)["outcome"]
     assert (again[outcomes == "done"] == "skipped-up-to-date").all()
     assert (again[outcomes == "not-run"] == "done").all()
+
+
+class _PressingProgress(batch.SilentProgress):
+    """Presses Ctrl-C (SIGINT to this process) ``presses`` times when the first unit is counted."""
+
+    def __init__(self, presses: int) -> None:
+        self.presses = presses
+        self.counted = []
+
+    def advance(self, outcome) -> None:
+        import signal
+
+        self.counted.append(outcome.unit.name)
+        if len(self.counted) == 1:
+            for _ in range(self.presses):
+                signal.raise_signal(signal.SIGINT)  # the handler runs before raise_signal returns
+
+
+class _FinishedAtOnce:
+    """An executor whose every task has already finished when submit returns (a worker that
+    was faster than the parent): the moment of the race, without depending on timing."""
+
+    def __init__(self, workers: int) -> None:
+        pass
+
+    def submit(self, function, *args):
+        import concurrent.futures as cf
+
+        future = cf.Future()
+        future.set_result(function(*args))
+        return future
+
+    def shutdown(self, wait=True, cancel_futures=False) -> None:
+        pass
+
+
+def _check_index_matches_the_folder(out_dir: Path, result) -> dict:
+    outcomes = {o.unit.name: o.outcome for o in result.outcomes}
+    index = read_index(out_dir)["outcome"].to_dict()
+    assert index == outcomes
+    for name, outcome in outcomes.items():
+        # done exactly when the output and its record are in place (issue 9 review: not-run beside its output)
+        in_place = (out_dir / f"{name}.gpkg").exists() and (out_dir / f"{name}.batch.json").exists()
+        assert in_place == (outcome == "done"), (name, outcome)
+    assert not [p for p in out_dir.iterdir() if p.name.startswith(".")]  # no staging folder, no lock
+    return outcomes
+
+
+def _twelve_inputs(tmp_path: Path) -> Path:
+    data = tmp_path / "data"
+    data.mkdir()
+    for seed in range(12):
+        write_gpkg(data / f"net{seed:02d}.gpkg", {"wells": synthetic_points(60, seed=seed)})
+    return data
+
+
+needs_main_thread = pytest.mark.skipif(
+    __import__("threading").current_thread() is not __import__("threading").main_thread(),
+    reason="signal handlers can only be installed in the main thread")
+
+
+@needs_main_thread
+def test_second_ctrl_c_commits_units_whose_worker_had_already_finished(tmp_path, monkeypatch):
+    from pointsift.batch import runner
+
+    data = _twelve_inputs(tmp_path)
+    monkeypatch.setattr(runner, "_make_executor", _FinishedAtOnce)
+    plan = batch.plan_from_args([str(data)], out_dir=tmp_path / "out", options=FAST, jobs=2)
+    result = batch.run_batch(plan, progress=_PressingProgress(presses=2))
+    assert result.interrupted and result.exit_code == 130
+    outcomes = _check_index_matches_the_folder(tmp_path / "out", result)
+    # 2 x jobs units were in flight and all had finished: the one counted first and the three
+    # waiting to be collected are done; the eight never started are not run
+    assert sorted(outcomes.values()).count("done") == 4
+    assert sorted(outcomes.values()).count("not-run") == 8
+
+
+@needs_main_thread
+@pytest.mark.parametrize("jobs, presses", [(1, 1), (1, 2), pytest.param(2, 1, marks=pytest.mark.slow),
+                                           pytest.param(2, 2, marks=pytest.mark.slow)])
+def test_ctrl_c_in_process_index_matches_the_folder(tmp_path, jobs, presses):
+    data = _twelve_inputs(tmp_path)
+    plan = batch.plan_from_args([str(data)], out_dir=tmp_path / "out", options=FAST, jobs=jobs)
+    result = batch.run_batch(plan, progress=_PressingProgress(presses=presses))
+    assert result.interrupted and result.exit_code == 130
+    outcomes = _check_index_matches_the_folder(tmp_path / "out", result)
+    done = [name for name, outcome in outcomes.items() if outcome == "done"]
+    assert set(outcomes.values()) <= {"done", "not-run"}
+    if jobs == 1:  # one unit at a time: only the first was screened
+        assert len(done) == 1
+    elif presses == 1:  # 2 x jobs units were in flight: one press lets them all finish
+        assert len(done) == 4
+    else:  # a second press abandons those still in a worker
+        assert 1 <= len(done) <= 4
+    # a rerun redoes only what was not run
+    again = batch.run_batch(plan)
+    assert {o.unit.name: o.outcome for o in again.outcomes} == {
+        name: ("skipped-up-to-date" if name in done else "done") for name in outcomes}
 
 
 def _child_pids(pid: int) -> list[int]:
@@ -295,3 +390,44 @@ def test_a_rerun_without_reports_leaves_no_stale_report(tmp_path):
     # the GeoPackage index says the same (read with sqlite3, independently of pointsift and pyogrio)
     with sqlite3.connect(out_dir / "batch-index.gpkg") as db:
         assert db.execute("SELECT output, report FROM batch_index WHERE unit = 'a'").fetchone() == ("a.gpkg", "")
+
+
+def test_groups_of_one_layer_read_and_hash_it_once_with_unchanged_results(tmp_path, monkeypatch):
+    import pointsift.batch.runner as runner
+    import pointsift.batch.units as units
+    import pointsift.io as io
+    import pointsift.run as run
+    from pointsift.config import ScreenConfig
+    from pointsift.pipeline import screen_frame
+
+    network = np.repeat(np.array(["A", "B", "C"], dtype=object), [50, 40, 30])
+    write_gpkg(tmp_path / "regional.gpkg", {"wells": synthetic_points(120, seed=4, extra={"network": network})})
+    reads, hashes = [], []
+
+    def counting(module, name, calls):
+        original = getattr(module, name)
+
+        def wrapper(path, *args, **kwargs):
+            calls.append(str(path))
+            return original(path, *args, **kwargs)
+
+        monkeypatch.setattr(module, name, wrapper)
+
+    counting(units, "read_points", reads)
+    counting(run, "read_points", reads)
+    counting(io, "file_sha256", hashes)  # read_points hashes through this one
+    counting(runner, "file_sha256", hashes)
+    plan = batch.plan_from_args([str(tmp_path / "regional.gpkg")], out_dir=tmp_path / "out", options=FAST,
+                                by="network")
+    result = batch.run_batch(plan)
+    assert [o.outcome for o in result.outcomes] == ["done"] * 3
+    assert len(reads) == 1 and len(hashes) == 1  # before: one read and one hash per group, and one more
+    # each group's output is the screen of exactly its rows (reference: a pandas selection screened on its own)
+    whole = pyogrio.read_dataframe(tmp_path / "regional.gpkg")
+    for label in ("A", "B", "C"):
+        alone = screen_frame(whole[whole["network"] == label].copy(), ScreenConfig(**FAST)).frame
+        written = pyogrio.read_dataframe(tmp_path / "out" / f"regional__network-{label}.gpkg", layer="screened")
+        assert written["well"].tolist() == alone["well"].tolist()
+        assert written["screen_status"].tolist() == alone["screen_status"].tolist()
+        assert np.allclose(written["screen_score"], alone["screen_score"], equal_nan=True)
+    assert {o.input_sha256 for o in result.outcomes} == {io.file_sha256(tmp_path / "regional.gpkg")}

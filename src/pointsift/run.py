@@ -82,6 +82,7 @@ def screen_file(
     source_note: str | None = None,
     report_path=None,
     summary_json_path=None,
+    read=None,
 ) -> RunResult:
     """Read ``input_path``, screen it with ``config`` and write ``out_path``.
 
@@ -106,13 +107,21 @@ def screen_file(
         Also write the self-contained HTML report here (after the GeoPackage).
     summary_json_path : path-like, optional
         Also write the JSON summary (the report's numbers) here.
+    read : tuple of (GeoDataFrame, SourceInfo), optional
+        The rows already read from ``input_path`` (with these ``layer``,
+        ``x``, ``y`` and the config's ``crs`` and ``thousands``) and their
+        provenance: the batch runner passes each group its rows, read and
+        hashed once per layer. ``frame_filter`` still applies.
 
     Returns
     -------
     RunResult
     """
     started = time.perf_counter()
-    frame, source = read_points(input_path, layer=layer, x=x, y=y, crs=config.crs, thousands=config.thousands)
+    if read is None:
+        frame, source = read_points(input_path, layer=layer, x=x, y=y, crs=config.crs, thousands=config.thousands)
+    else:
+        frame, source = read
     if frame_filter is not None:
         frame = frame_filter(frame)
     result = screen_frame(frame, config, source=source)

@@ -25,7 +25,7 @@ from .index import write_index
 from .outcomes import DONE, FAILED, NOT_RUN, SKIPPED, BatchResult, UnitOutcome
 from .plan import BatchPlan
 from .progress import SilentProgress
-from .units import Unit, describe_failure, expand_units, group_labels, with_origin
+from .units import Unit, describe_failure, expand_units, group_labels, read_key, with_origin
 
 __all__ = ["run_batch"]
 
@@ -44,6 +44,8 @@ class _Task:
     fingerprint: str
     input_sha256: str
     version: str
+    #: a group's rows and their source, read once per layer by the expansion (None: the unit reads its file)
+    read: tuple | None = None
 
 
 def _group_filter(by: str, group: str | None):
@@ -57,6 +59,15 @@ def _group_filter(by: str, group: str | None):
         return frame.loc[keep].copy()
 
     return select
+
+
+def _group_rows(unit: Unit, layers_read: dict) -> tuple | None:
+    """A group's rows (and their source) from the layer the expansion read, or None to read the file."""
+    if unit.by is None or read_key(unit) not in layers_read:
+        return None
+    frame, source, labels = layers_read[read_key(unit)]
+    keep = [label == unit.group for label in labels]
+    return frame.loc[keep].copy(), source
 
 
 def _lonlat_extent(bounds, crs) -> tuple[float, float, float, float] | None:
@@ -86,13 +97,17 @@ def _crs_text(crs) -> str:
 
 
 def _screen_unit(task: _Task) -> UnitOutcome:
-    """Screen one unit into the staging folder, then move the files into place."""
+    """Screen one unit into the staging folder (in a worker, or in this process with one job).
+
+    Nothing is moved into place here: :func:`_commit` does that in the
+    parent, so a unit counts as done exactly when its output is in place,
+    whatever moment a Ctrl-C or SIGTERM comes at.
+    """
     from ..run import screen_file
 
     unit = task.unit
     started = time.perf_counter()
-    staged_out = task.staging / task.out_path.name
-    staged_report = task.staging / task.report_path.name if task.report_path else None
+    staged_out, staged_report = _staged(task)
     try:
         with caller(unit.words):  # messages about this unit in the words of whoever set it up
             run = screen_file(
@@ -103,29 +118,20 @@ def _screen_unit(task: _Task) -> UnitOutcome:
                 x=unit.x,
                 y=unit.y,
                 overwrite=True,
-                frame_filter=_group_filter(unit.by, unit.group) if unit.by else None,
+                frame_filter=_group_filter(unit.by, unit.group) if unit.by and task.read is None else None,
                 source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
                 report_path=staged_report,
+                read=task.read,
             )
         screened = run.result.frame
-        prepared = getattr(run.result, "prepared", None)
-        crs = getattr(prepared, "input_crs", None) or screened.crs
+        crs = run.result.prepared.input_crs or screened.crs
         bounds = screened.total_bounds if len(screened) else None
-        counts = run.counts
-        screen_seconds = run.seconds
-        os.replace(staged_out, task.out_path)
-        note = ""
-        if staged_report is not None:
-            os.replace(staged_report, task.report_path)
-        elif _remove_stale_report(task.out_path):
-            note = "removed the report of an earlier run (this run writes none, so it no longer matched the output)"
         outcome = UnitOutcome(
             unit=unit,
             outcome=DONE,
-            message=note,
-            counts={s: int(counts.get(s, 0)) for s in STATUSES},
+            counts={s: int(run.counts.get(s, 0)) for s in STATUSES},
             points=int(len(screened)),
-            screen_seconds=screen_seconds,
+            screen_seconds=run.seconds,
             output=task.out_path.name,
             report=task.report_path.name if task.report_path else "",
             input_sha256=task.input_sha256,
@@ -133,17 +139,54 @@ def _screen_unit(task: _Task) -> UnitOutcome:
             input_crs=_crs_text(crs),
             extent_lonlat=_lonlat_extent(bounds, crs),
         )
-        write_record(task.record_path, record_of(outcome, task.version))
     except Exception as exc:  # any failure of one unit is recorded; the batch continues
         logger.debug("unit %s failed", unit.name, exc_info=True)
-        for leftover in (staged_out, staged_report):
-            if leftover is not None and leftover.exists():
-                leftover.unlink()
-        outcome = UnitOutcome(
-            unit=unit, outcome=FAILED, message=with_origin(describe_failure(exc, unit.path), unit),
-            input_sha256=task.input_sha256, fingerprint=task.fingerprint,
-        )
+        _discard(staged_out, staged_report)
+        outcome = _failed(task, with_origin(describe_failure(exc, unit.path), unit))
     outcome.seconds = time.perf_counter() - started
+    return outcome
+
+
+def _staged(task: _Task) -> tuple[Path, Path | None]:
+    """Where a unit's output (and report) are written before they are moved into place."""
+    return task.staging / task.out_path.name, (task.staging / task.report_path.name if task.report_path else None)
+
+
+def _discard(*paths) -> None:
+    for leftover in paths:
+        if leftover is not None and leftover.exists():
+            leftover.unlink()
+
+
+def _failed(task: _Task, message: str) -> UnitOutcome:
+    return UnitOutcome(unit=task.unit, outcome=FAILED, message=message, input_sha256=task.input_sha256,
+                       fingerprint=task.fingerprint)
+
+
+def _commit(task: _Task, outcome: UnitOutcome, outcomes: list, number: int) -> UnitOutcome:
+    """Move a screened unit's staged files into place, write its record and count it, as one step.
+
+    Ctrl-C and SIGTERM are held back for the few milliseconds this takes (and
+    acted on right after), so the index never calls a unit ``not-run`` beside
+    the output it made, nor ``done`` without it. A failed unit is only counted.
+    """
+    with _signals_held():
+        if outcome.outcome == DONE:
+            staged_out, staged_report = _staged(task)
+            try:
+                os.replace(staged_out, task.out_path)
+                if staged_report is not None:
+                    os.replace(staged_report, task.report_path)
+                elif _remove_stale_report(task.out_path):
+                    outcome.message = ("removed the report of an earlier run (this run writes none, so it no "
+                                       "longer matched the output)")
+                write_record(task.record_path, record_of(outcome, task.version))
+            except OSError as exc:
+                _discard(staged_out, staged_report)
+                seconds = outcome.seconds
+                outcome = _failed(task, f"the finished output could not be moved into place: {exc}")
+                outcome.seconds = seconds
+        outcomes[number] = outcome
     return outcome
 
 
@@ -222,6 +265,28 @@ def _no_interrupt():
         yield
     finally:
         signal.signal(signal.SIGINT, previous)
+
+
+@contextlib.contextmanager
+def _signals_held():
+    """Hold Ctrl-C and SIGTERM back during a short step; the handlers in force act on them after it."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    arrived: list[int] = []
+    held = (signal.SIGINT, signal.SIGTERM)
+    previous = {number: signal.signal(number, lambda signum, frame: arrived.append(signum)) for number in held}
+    try:
+        yield
+    finally:
+        for number in held:
+            signal.signal(number, previous[number])
+        for signum in arrived:
+            handler = previous[signum]
+            if callable(handler):
+                handler(signum, None)
+            elif handler == signal.SIG_DFL:
+                signal.raise_signal(signum)
 
 
 def _mp_context():
@@ -351,12 +416,6 @@ def _take_lock(out_dir: Path) -> Path:
     raise OutputError(f"Cannot claim {str(out_dir)!r} for the batch; delete {str(lock)!r} and run again.")
 
 
-def _alive(pid: int) -> bool:
-    from ..lifetime import process_alive
-
-    return pid == os.getpid() or process_alive(pid)
-
-
 def _run_units(plan, out_dir, staging, jobs, force, progress):
     """Expand, check what is up to date, screen the rest; returns (units, outcomes, interrupted)."""
     version = __version__
@@ -367,7 +426,10 @@ def _run_units(plan, out_dir, staging, jobs, force, progress):
     interrupted = False
     try:
         with _StopRequest(progress) as stop:
-            units = expand_units(plan)
+            layers_read: dict = {}  # grouped layers, read once by the expansion
+            units = expand_units(plan, layers_read)
+            for key, (_, source, _) in layers_read.items():
+                hashes.setdefault(Path(key[0]), source.sha256)
             outcomes = [None] * len(units)
             progress.start(len(units))
             for number, unit in enumerate(units):
@@ -410,13 +472,13 @@ def _run_units(plan, out_dir, staging, jobs, force, progress):
                     progress.advance(outcomes[number])
                     continue
                 tasks.append((number, _Task(unit, out_path, report_path, record_path, staging, fingerprint, sha,
-                                            version)))
+                                            version, _group_rows(unit, layers_read))))
+            layers_read.clear()  # each task holds its own rows now
             if jobs == 1 or len(tasks) <= 1:
                 for number, task in tasks:
                     if stop.requested:
                         break
-                    outcomes[number] = _screen_unit(task)
-                    progress.advance(outcomes[number])
+                    progress.advance(_commit(task, _screen_unit(task), outcomes, number))
             else:
                 _run_pool(tasks, outcomes, jobs, stop, progress)
             interrupted = stop.requested
@@ -430,7 +492,9 @@ def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
 
     A worker that dies (a crash in a compiled library, killed for memory)
     breaks the pool: every unit in flight is tried once more in a new pool,
-    and a unit that breaks a pool twice is recorded as failed.
+    and a unit that breaks a pool twice is recorded as failed. When the run
+    is abandoned (a second Ctrl-C, SIGTERM), units whose worker has already
+    returned are still committed; the others are dropped with their staged files.
     """
     by_number = dict(tasks)
     pending = list(reversed(tasks))
@@ -440,31 +504,27 @@ def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
 
     def collect(future) -> bool:
         """Record a finished future; False when its pool broke."""
-        number = running.pop(future)
+        number = running[future]
         try:
-            outcomes[number] = future.result()
+            result = future.result()
         except cf.process.BrokenProcessPool as exc:
+            del running[future]
             strikes[number] = strikes.get(number, 0) + 1
             if strikes[number] < 2:
                 pending.append((number, by_number[number]))
                 return False
-            task = by_number[number]
-            outcomes[number] = UnitOutcome(
-                unit=task.unit, outcome=FAILED,
-                message=f"the worker process stopped unexpectedly while screening this input, twice ({exc}).",
-                input_sha256=task.input_sha256, fingerprint=task.fingerprint,
-            )
-            progress.advance(outcomes[number])
+            message = f"the worker process stopped unexpectedly while screening this input, twice ({exc})."
+            progress.advance(_commit(by_number[number], _failed(by_number[number], message), outcomes, number))
             return False
+        _commit(by_number[number], result, outcomes, number)
+        del running[future]
         progress.advance(outcomes[number])
         return True
 
     try:
         while pending or running:
             if executor is None:
-                executor = cf.ProcessPoolExecutor(max_workers=min(jobs, len(pending) or 1),
-                                                  mp_context=_mp_context(), initializer=_worker_init,
-                                                  initargs=(os.getpid(),))
+                executor = _make_executor(min(jobs, len(pending) or 1))
             while pending and not stop.requested and len(running) < 2 * jobs:
                 number, task = pending.pop()
                 running[executor.submit(_screen_unit, task)] = number
@@ -481,10 +541,26 @@ def _run_pool(tasks, outcomes, jobs, stop, progress) -> None:
         if executor is not None:
             executor.shutdown(wait=True)
     except BaseException:
-        # Abandon: stop the workers now; the caller removes the staging folder,
-        # so nothing they were writing survives.
-        if executor is not None:
-            for process in list((getattr(executor, "_processes", None) or {}).values()):
-                process.terminate()
-            executor.shutdown(wait=False, cancel_futures=True)
+        _abandon(executor, running, by_number, outcomes)
         raise
+
+
+def _make_executor(workers: int) -> cf.Executor:
+    return cf.ProcessPoolExecutor(max_workers=workers, mp_context=_mp_context(), initializer=_worker_init,
+                                  initargs=(os.getpid(),))
+
+
+def _abandon(executor, running: dict, by_number: dict, outcomes: list) -> None:
+    """Stop the workers now, after committing every unit whose worker has already returned.
+
+    A unit still in a worker is dropped: the caller removes the staging
+    folder, so nothing it was writing survives, and the index calls it
+    ``not-run``. A unit committed before (its output in place) is never undone.
+    """
+    for future, number in list(running.items()):
+        if outcomes[number] is None and future.done() and not future.cancelled() and future.exception() is None:
+            _commit(by_number[number], future.result(), outcomes, number)
+    if executor is not None:
+        for process in list((getattr(executor, "_processes", None) or {}).values()):
+            process.terminate()
+        executor.shutdown(wait=False, cancel_futures=True)

@@ -16,7 +16,7 @@ from ..io import list_layers, read_points
 from .index import INDEX_STEM
 from .plan import BatchPlan, InputSpec, suggest
 
-__all__ = ["Unit", "DIRECTORY_SUFFIXES", "expand_units", "group_labels", "describe_failure", "with_origin"]
+__all__ = ["Unit", "DIRECTORY_SUFFIXES", "expand_units", "group_labels", "describe_failure", "with_origin", "read_key"]
 
 #: File suffixes picked up when an input names a directory.
 DIRECTORY_SUFFIXES = (".gpkg", ".shp", ".csv", ".parquet", ".geoparquet", ".geojson", ".fgb")
@@ -146,7 +146,7 @@ def group_labels(values) -> list[str | None]:
     return [None if miss else str(t) for t, miss in zip(text.tolist(), missing)]
 
 
-def expand_units(plan: BatchPlan) -> list[Unit]:
+def expand_units(plan: BatchPlan, layers_read: dict | None = None) -> list[Unit]:
     """Expand a plan into units, in plan order; names are unique.
 
     Files are listed (directories non-recursively, globs sorted), GeoPackage
@@ -159,6 +159,11 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
     Parameters
     ----------
     plan : BatchPlan
+    layers_read : dict, optional
+        Filled with what expansion read to find the groups, so the runner
+        hands each group its rows instead of reading and hashing the layer
+        again per group: ``(path, layer, x, y, crs, thousands)`` ->
+        ``(frame, source, labels)`` (the group label of each row).
 
     Returns
     -------
@@ -167,7 +172,7 @@ def expand_units(plan: BatchPlan) -> list[Unit]:
     drafts: list[tuple[tuple[str, ...], dict]] = []  # (name parts, unit fields)
     for spec in plan.inputs:
         with caller(spec.words):  # messages about this entry in its own words
-            drafts.extend(_spec_drafts(spec, plan.out_dir))
+            drafts.extend(_spec_drafts(spec, plan.out_dir, layers_read if layers_read is not None else {}))
     unique_drafts, identities = [], set()
     for parts, fields in drafts:
         identity = _identity(fields)
@@ -199,7 +204,12 @@ def _refuse_outputs_over_inputs(units: list, out_dir: Path) -> None:
                 ) from None
 
 
-def _spec_drafts(spec: InputSpec, out_dir: Path) -> list[tuple[tuple[str, ...], dict]]:
+def read_key(unit: Unit) -> tuple:
+    """What identifies one read of a unit's layer (the arguments :func:`pointsift.io.read_points` gets)."""
+    return (str(unit.path), unit.layer, unit.x, unit.y, unit.config.crs, unit.config.thousands)
+
+
+def _spec_drafts(spec: InputSpec, out_dir: Path, layers_read: dict) -> list[tuple[tuple[str, ...], dict]]:
     """(name parts, unit fields) of every unit of one plan entry; problems become fields, never exceptions."""
     drafts: list[tuple[tuple[str, ...], dict]] = []
     files = _resolve_paths(spec, out_dir)
@@ -240,7 +250,8 @@ def _spec_drafts(spec: InputSpec, out_dir: Path) -> list[tuple[tuple[str, ...], 
                 drafts.append((stem, fields))
                 continue
             try:
-                frame, _ = read_points(path, layer=layer, x=spec.x, y=spec.y, crs=spec.config.crs)
+                frame, source = read_points(path, layer=layer, x=spec.x, y=spec.y, crs=spec.config.crs,
+                                            thousands=spec.config.thousands)
             except Exception as exc:
                 drafts.append((stem, dict(fields, problem=describe_failure(exc, path))))
                 continue
@@ -252,6 +263,8 @@ def _spec_drafts(spec: InputSpec, out_dir: Path) -> list[tuple[tuple[str, ...], 
                     f"{suggest(spec.by, map(str, columns))}"))))
                 continue
             labels = group_labels(frame[spec.by])
+            layers_read[(str(path), layer, spec.x, spec.y, spec.config.crs, spec.config.thousands)] = (
+                frame, source, labels)
             present = sorted({label for label in labels if label is not None})
             if any(label is None for label in labels):
                 present.append(None)
