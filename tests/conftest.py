@@ -59,6 +59,19 @@ def build_wells(
     )
 
 
+def invented_programme(wells: int, campaigns: int, **options) -> gpd.GeoDataFrame:
+    """An invented monitoring programme in long form (``benchmarks/programme.py``, seeded; not a real survey)."""
+    import importlib.util
+    import sys
+
+    spec = importlib.util.spec_from_file_location("programme", Path(__file__).resolve().parents[1] / "benchmarks"
+                                                  / "programme.py")
+    module = importlib.util.module_from_spec(spec)
+    sys.modules["programme"] = module
+    spec.loader.exec_module(module)
+    return module.make_programme(wells, campaigns, **options)
+
+
 def to_lonlat(gdf: gpd.GeoDataFrame) -> gpd.GeoDataFrame:
     """The same layer in EPSG:4326 (longitude/latitude)."""
     return gdf.to_crs("EPSG:4326")

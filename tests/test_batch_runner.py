@@ -431,3 +431,85 @@ def test_groups_of_one_layer_read_and_hash_it_once_with_unchanged_results(tmp_pa
         assert written["screen_status"].tolist() == alone["screen_status"].tolist()
         assert np.allclose(written["screen_score"], alone["screen_score"], equal_nan=True)
     assert {o.input_sha256 for o in result.outcomes} == {io.file_sha256(tmp_path / "regional.gpkg")}
+
+
+def _programme_csv(folder: Path) -> Path:
+    from conftest import invented_programme
+
+    frame = invented_programme(40, 8, seed=4, missing=0.0)
+    frame.loc[150, "level_m"] = frame.loc[150, "level_m"] * 10  # a decimal slip
+    path = folder / "readings.csv"
+    frame.assign(x=frame.geometry.x, y=frame.geometry.y).drop(columns="geometry").to_csv(path, index=False)
+    return path
+
+
+def test_a_plan_entry_runs_the_campaign_screen_like_the_command(tmp_path):
+    import sqlite3
+    import textwrap
+
+    from pointsift.cli import main
+
+    _programme_csv(tmp_path)
+    plan = tmp_path / "plan.toml"
+    plan.write_text(textwrap.dedent("""
+        [batch]
+        out_dir = "out"
+        [defaults]
+        value = "level_m"
+        id = "well_id"
+        crs = "EPSG:32633"
+        x = "x"
+        y = "y"
+        permutations = 99
+        [[input]]
+        path = "readings.csv"
+        command = "campaigns"
+        date = "date"
+        min_campaigns = 5
+    """))
+    result = batch.run_batch(batch.load_plan(plan))
+    assert [o.outcome for o in result.outcomes] == ["done"], result.outcomes[0].message
+    assert main(["campaigns", str(tmp_path / "readings.csv"), "--value", "level_m", "--id", "well_id", "--date", "date",
+                 "--crs", "EPSG:32633", "--x", "x", "--y", "y", "--permutations", "99", "--min-campaigns", "5",
+                 "--out", str(tmp_path / "direct.gpkg")]) == 0
+    query = "select well_id, reading_status, reading_score, reading_reasons from readings order by fid"
+    with sqlite3.connect(tmp_path / "out" / "readings.gpkg") as con:  # an independent reader
+        from_plan = con.execute(query).fetchall()
+        layers = {r[0] for r in con.execute("select table_name from gpkg_contents")}
+    with sqlite3.connect(tmp_path / "direct.gpkg") as con:
+        direct = con.execute(query).fetchall()
+    assert {"readings", "wells", "changes", "run_info"} <= layers
+    assert from_plan == direct and from_plan[150][1] == "suspect"
+    assert result.outcomes[0].counts == {s: sum(r[1] == s for r in direct) for s in ("suspect", "review", "ok", "unscreened")}
+    # the campaign options are part of what makes the output up to date
+    assert [o.outcome for o in batch.run_batch(batch.load_plan(plan)).outcomes] == ["skipped-up-to-date"]
+    plan.write_text(plan.read_text().replace("min_campaigns = 5", "min_campaigns = 6"))
+    assert [o.outcome for o in batch.run_batch(batch.load_plan(plan)).outcomes] == ["done"]
+
+
+def test_campaign_keys_need_the_campaigns_command(tmp_path):
+    import textwrap
+
+    from pointsift.errors import ConfigError
+
+    _programme_csv(tmp_path)
+    plan = tmp_path / "plan.toml"
+    plan.write_text(textwrap.dedent("""
+        [batch]
+        out_dir = "out"
+        [[input]]
+        path = "readings.csv"
+        value = "level_m"
+        date = "date"
+        [[input]]
+        path = "readings.csv"
+        value = "level_m"
+        command = "campaigns"
+        date = "date"
+        by = "well_id"
+    """))
+    with pytest.raises(ConfigError) as caught:
+        batch.load_plan(plan)
+    message = str(caught.value)
+    assert "key 'date': is a campaign key: set command = \"campaigns\"" in message
+    assert "key 'by': does not apply with command = \"campaigns\"" in message

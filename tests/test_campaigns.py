@@ -141,9 +141,44 @@ def test_python_api_and_bad_options(programme):
     assert len(out) == len(programme)
     # an invented programme without mistakes: few readings suspect
     assert (out.reading_status == "suspect").mean() <= 0.01
-    with pytest.raises(ConfigError, match="--id"):
+    # messages name the options in the caller's words (Python here; the CLI test checks --id COLUMN)
+    with pytest.raises(ConfigError, match=r"pass id='COLUMN'"):
         CampaignConfig(screen=ScreenConfig(value="level_m"), date="date")
-    with pytest.raises(ConfigError, match="--date COLUMN"):
+    with pytest.raises(ConfigError, match=r"pass date='COLUMN'"):
         CampaignConfig(screen=ScreenConfig(value="level_m", id="well_id"))
     with pytest.raises(InputError, match="no date column 'when'"):
         screen_campaigns(programme, CampaignConfig(screen=ScreenConfig(value="level_m", id="well_id"), date="when"))
+
+
+def test_context_columns_reach_each_campaign_screen(monkeypatch):
+    # issue 12: the context columns of the single screen work here too; each campaign's screen gets them
+    import pointsift.campaigns as campaigns_module
+
+    frame = _programme_module().make_programme(40, 6, seed=3, missing=0.0)  # invented programme
+    rng = np.random.default_rng(3)
+    wells = frame["well_id"].astype(str)
+    ground = {w: 200.0 + rng.uniform(0, 5) for w in wells.unique()}
+    frame["ground_m"] = wells.map(ground)
+    frame["depth_m"] = wells.map({w: 60.0 + 10 * (i % 3) for i, w in enumerate(ground)})
+    frame["site"] = wells
+    frame["aquifer"] = wells.map({w: "upper" if i % 2 else "lower" for i, w in enumerate(ground)})
+    seen = []
+    original = campaigns_module.screen_frame
+
+    def recording(sub, config, **kwargs):
+        seen.append((config, set(sub.columns)))
+        return original(sub, config, **kwargs)
+
+    monkeypatch.setattr(campaigns_module, "screen_frame", recording)
+    screen = ScreenConfig(value="level_m", id="well_id", permutations=99, ground_elevation="ground_m",
+                          well_depth="depth_m", site="site", aquifer="aquifer", quantity="level", units="m",
+                          land_surface_use="drift")
+    result = screen_campaigns(frame, CampaignConfig(screen=screen, date="date", min_campaign_readings=20))
+    assert len(seen) == result.run_info["campaigns_screened"] == 6
+    for config, columns in seen:
+        assert (config.ground_elevation, config.well_depth, config.site, config.aquifer, config.quantity,
+                config.units, config.land_surface_use) == ("ground_m", "depth_m", "site", "aquifer", "level", "m",
+                                                            "drift")
+        assert {"ground_m", "depth_m", "site", "aquifer"} <= columns
+    assert result.run_info["parameters"]["screen"]["ground_elevation"] == "ground_m"
+    assert len(result.readings) == len(frame)

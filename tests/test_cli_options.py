@@ -23,6 +23,7 @@ OWN = {
     "screen": {"input_path", "out_path", "overwrite", "report_path", "summary_json_path"},
     "describe": {"input_path", "out_path", "overwrite", "figures_dir", "with_screen", "report_path", "summary_json_path"},
     "batch": {"inputs", "force", "batch_quiet"},
+    "campaigns": {"inputs", "out_path", "overwrite", "report_path"},
 }
 
 
@@ -38,6 +39,27 @@ def test_each_command_offers_exactly_its_table_options(command):
         assert param.opts[0] == f"--{option.flag}"
         assert param.required == (command in option.required)
         assert param.help == option.help_text()
+
+
+def test_campaign_options_are_checked_by_the_table_in_every_callers_words():
+    # the same entry checks --min-campaigns on the command line and min_campaigns= in Python
+    from click.testing import CliRunner
+
+    from pointsift.campaigns import CampaignConfig
+    from pointsift.config import OptionError, ScreenConfig
+
+    with pytest.raises(OptionError, match=r"min_campaigns=2 is outside the range: it must be a whole number, 3 or more"):
+        CampaignConfig(ScreenConfig(value="level_m", id="well"), date="measured", min_campaigns=2)
+    with pytest.raises(OptionError, match=r"campaign_window='x=1-13'.*months must be 1 to 12"):
+        CampaignConfig(ScreenConfig(value="level_m", id="well"), date="measured", campaign_window="x=1-13")
+    with pytest.raises(OptionError, match=r"pass date='COLUMN' .* or campaign='COLUMN'"):
+        CampaignConfig(ScreenConfig(value="level_m", id="well"))
+    result = CliRunner().invoke(cli, ["campaigns", "a.gpkg", "--value", "v", "--id", "w", "--date", "d",
+                                      "--min-campaigns", "2", "--out", "o.gpkg"])
+    assert result.exit_code == 2 and "--min-campaigns" in result.output and "3 or more" in result.output
+    assert {o.name for o in OPTIONS.values() if o.config == "campaign"} == {
+        "date", "campaign", "campaign_window", "change_span", "min_campaigns", "min_campaign_readings",
+        "change_permutations"}
 
 
 def test_describe_shows_no_screen_only_option():
@@ -58,7 +80,10 @@ def test_plan_tables_accept_exactly_the_table_keys(tmp_path):
         value = {"layers": '"all"', "sentinels": "[-9999]", "k": "12", "permutations": "99", "graph": '"knn"',
                  "detrend": '"none"', "thousands": '","', "crs": '"EPSG:32633"', "work_crs": '"EPSG:32633"', "suspect_z": "4.0", "review_z": "3.0", "seed": "1",
                  "lag_count": "6", "min_neighbours": "4", "id": '"well"', "x": '"e"', "y": '"n"',
-                 "quantity": '"level"', "land_surface_use": '"depth"', "transform": '"none"'}.get(
+                 "quantity": '"level"', "land_surface_use": '"depth"', "transform": '"none"',
+                 "report_points": "2000", "report_title": '"Network"', "command": '"campaigns"',
+                 "campaign_window": '"year"', "change_permutations": "199", "date": '"measured"',
+                 "campaign": '"round"'}.get(
             name, samples.get(option.kind))
         lines.append(f"{name} = {value}")
     defaults = "\n".join(line for line in lines if not line.startswith(("x =", "y =", "by =")))
@@ -69,6 +94,11 @@ def test_plan_tables_accept_exactly_the_table_keys(tmp_path):
     config = loaded.inputs[0].config
     assert config.lag_width == 500.0 and config.within == 500.0  # lengths with units, as docs/batch.md promises
     assert config.graph == "knn" and config.k == 12
+    # the report options reach the entry as a ReportConfig (batch carries configs, never dicts)
+    assert loaded.inputs[0].report_config.report_points == 2000 and loaded.inputs[0].report_config.report_title == "Network"
+    # and the campaign keys a CampaignConfig, with the same screen options inside
+    campaign = loaded.inputs[0].campaign
+    assert loaded.inputs[0].command == "campaigns" and campaign.campaign_window == "year" and campaign.screen == config
     known = set(plan_keys("defaults")) | set(plan_keys("input")) | set(plan_keys("batch"))
     assert known == {o.name for o in OPTIONS.values() if o.plan}
     plan.write_text('[defaults]\nvalue = "level_m"\nsuspect_zz = 4\n[[input]]\npath = "a.gpkg"\n')

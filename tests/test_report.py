@@ -23,7 +23,7 @@ import pytest
 from click.testing import CliRunner
 
 from pointsift.cli import main
-from pointsift.config import ScreenConfig
+from pointsift.config import ReportConfig, ScreenConfig
 from pointsift.errors import OutputError
 from pointsift.report import build_report, flagged_rows
 from pointsift.findings import MapData
@@ -406,7 +406,7 @@ def test_scale_bar_lengths_are_round(span, expected):
 
 def test_large_layers_are_shaded_not_dropped(screened):
     result = screened["run"].result
-    report = build_report(result, max_points=100)
+    report = build_report(result, config=ReportConfig(report_points=100))
     summary = report.summary
     counts = summary["counts"]
     assert summary["map"]["shaded"] == {"ok": counts["ok"]}
@@ -552,3 +552,45 @@ def test_describe_with_screen_reports_the_screens_own_numbers(screened, tmp_path
     assert summary["flagged"]["neighbourhoods"] and summary["flagged"]["rows"] == screen["flagged"]["rows"]
     assert summary["variogram"]["model"] == screen["variogram"]["model"]  # one function makes both
     assert summary["local_evidence"]["quadrant_counts"] == screen["local_evidence"]["quadrant_counts"]
+
+
+def test_every_suspect_on_a_crowded_map_is_labelled_by_id_or_by_a_number_in_the_key():
+    # 150 suspects packed in a small square among ok points: ids cannot all fit, numbers must
+    rng = np.random.default_rng(5)
+    n_suspect = 150
+    xy = np.vstack([rng.uniform(0, 2000, (n_suspect, 2)), rng.uniform(0, 20_000, (300, 2))])
+    status = np.array(["suspect"] * n_suspect + ["ok"] * 300, dtype=object)
+    ids = np.array([f"W{i:03d}" for i in range(xy.shape[0])], dtype=object)
+    score = np.concatenate([rng.uniform(3.6, 20, n_suspect), rng.uniform(0, 1, 300)])
+    data = MapData(xy=xy, values=rng.normal(size=xy.shape[0]), ids=ids, status=status, score=score)
+    fig, record = plot_status_map(data, crs_label="EPSG:32633", max_labels=80)
+    assert record["labelled"] < n_suspect and record["numbered"] > 0  # the layer is crowded enough to need numbers
+    assert record["labelled"] + record["numbered"] == n_suspect and record["labels_left_out"] == 0
+    shown = [t.get_text() for t in fig.axes[0].texts]
+    by_number = {str(k["number"]): k["id"] for k in record["key"]}
+    named = {text for text in shown if text in set(ids)} | {by_number[text] for text in shown if text in by_number}
+    assert named == set(ids[:n_suspect])  # every suspect identifiable on the map
+    # numbers follow the strength order (strongest first, as the flagged table)
+    strength = {ids[i]: score[i] for i in range(n_suspect)}
+    ordered = [k["id"] for k in sorted(record["key"], key=lambda k: k["number"])]
+    assert ordered == sorted(ordered, key=lambda i: -strength[i])
+
+
+def test_report_key_lists_the_numbered_suspects(tmp_path):
+    wells = build_wells(400, seed=3)
+    rng = np.random.default_rng(8)
+    slips = rng.choice(400, 60, replace=False)
+    wells.loc[slips, "level_m"] = wells.loc[slips, "level_m"] * 10.0  # decimal slips (invented)
+    source = write_points(wells, tmp_path / "wells.gpkg")
+    run = screen_file(source, tmp_path / "out.gpkg", ScreenConfig(value="level_m", id="well_id", permutations=99))
+    report = build_report(run.result, config=ReportConfig(report_labels=5))
+    m, counts = report.summary["map"], report.summary["counts"]
+    assert counts["suspect"] > 5 and m["labelled"] <= 5
+    assert m["labelled"] + m["numbered"] == counts["suspect"] and m["not_numbered"] == 0
+    screened = pyogrio.read_dataframe(tmp_path / "out.gpkg", layer="screened")  # independent reader
+    for k in m["key"]:
+        assert screened.loc[k["row"], "screen_status"] == "suspect" and str(screened.loc[k["row"], "well_id"]) == k["id"]
+        assert f'<li><b>{k["number"]}</b> {k["id"]}</li>' in report.html
+    assert "carry a number, listed with their ids under the map" in report.html
+    _validate = pytest.importorskip("jsonschema")
+    _validate.validate(report.summary, json.loads(SCHEMA_PATH.read_text()), cls=_validate.Draft202012Validator)

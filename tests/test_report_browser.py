@@ -319,3 +319,37 @@ def test_phone_width_has_no_sideways_scroll_and_shows_the_reasons(opened):
     finally:
         browser.send("Emulation.setDeviceMetricsOverride",
                      {"width": VIEWPORT[0], "height": VIEWPORT[1], "deviceScaleFactor": 1, "mobile": False}, session=session)
+
+
+def test_campaign_report_at_phone_width_has_no_sideways_scroll(tmp_path):
+    # the campaign report is drawn on the same page as the screen report: the same 390 px rule holds
+    from conftest import invented_programme
+
+    from pointsift.campaigns import CampaignConfig, screen_campaigns
+    from pointsift.report.campaigns import write_campaign_report
+
+    frame = invented_programme(60, 8, seed=5, missing=0.0)
+    frame.loc[300, "level_m"] += 9.0
+    result = screen_campaigns(frame, CampaignConfig(screen=ScreenConfig(value="level_m", id="well_id",
+                                                                        permutations=99), date="date"))
+    report = write_campaign_report(result, tmp_path / "campaigns.html")
+    browser = DevTools(tmp_path / "profile")
+    try:
+        target = browser.send("Target.createTarget", {"url": "about:blank"})["targetId"]
+        session = browser.send("Target.attachToTarget", {"targetId": target, "flatten": True})["sessionId"]
+        for domain in ("Runtime", "Page"):
+            browser.send(f"{domain}.enable", session=session)
+        browser.send("Emulation.setDeviceMetricsOverride",
+                     {"width": 390, "height": 844, "deviceScaleFactor": 2, "mobile": True}, session=session)
+        browser.send("Page.navigate", {"url": report.as_uri()}, session=session)
+        browser.wait_for("Page.loadEventFired", session, timeout=20)
+        page = {"browser": browser, "session": session}
+        _evaluate(page, 'document.querySelectorAll("details").forEach(d => d.open = true); 0')
+        inner = _evaluate(page, "window.innerWidth")
+        assert inner == 390 and _evaluate(page, "document.documentElement.scrollWidth") <= inner
+        widths = _evaluate(page, """Array.from(document.querySelectorAll("figure img"))
+            .map(i => i.getBoundingClientRect().right)""")
+        assert len(widths) == 2 and all(right <= inner for right in widths), widths
+        assert _evaluate(page, 'document.querySelectorAll("#counts .card").length') == 4
+    finally:
+        browser.close()

@@ -35,7 +35,8 @@ def _label(path: Path, layer: str | None, several_layers: bool) -> str:
 
 
 def read_campaign_inputs(inputs: list, *, layer: str | None = None, x: str | None = None, y: str | None = None,
-                         crs: str | None = None) -> tuple[gpd.GeoDataFrame, SourceInfo, list | None]:
+                         crs: str | None = None, thousands: str | None = None
+                         ) -> tuple[gpd.GeoDataFrame, SourceInfo, list | None]:
     """Read one long-form layer, or stack several layers/files (one per campaign).
 
     Parameters
@@ -45,8 +46,8 @@ def read_campaign_inputs(inputs: list, *, layer: str | None = None, x: str | Non
         campaign when ``layer`` is ``"*"``), or several files, one per campaign.
     layer : str, optional
         Layer of a single GeoPackage; ``"*"`` reads every layer as a campaign.
-    x, y, crs : str, optional
-        Coordinate columns and CRS of tables.
+    x, y, crs, thousands : str, optional
+        Coordinate columns, CRS and thousands separator of tables (as :func:`pointsift.io.read_points`).
 
     Returns
     -------
@@ -59,7 +60,7 @@ def read_campaign_inputs(inputs: list, *, layer: str | None = None, x: str | Non
     """
     paths = [Path(p) for p in inputs]
     if len(paths) == 1 and layer != "*":
-        frame, source = read_points(paths[0], layer=layer, x=x, y=y, crs=crs)
+        frame, source = read_points(paths[0], layer=layer, x=x, y=y, crs=crs, thousands=thousands)
         return frame, source, None
     parts, sources = [], []
     for path in paths:
@@ -68,7 +69,7 @@ def read_campaign_inputs(inputs: list, *, layer: str | None = None, x: str | Non
         if chosen is None:
             raise InputError(f"{str(path)!r} holds {len(layers)} layers: {', '.join(layers)}. Choose one with --layer NAME, or --layer '*' for every layer as a campaign.")
         for name in chosen:
-            frame, source = read_points(path, layer=name, x=x, y=y, crs=crs)
+            frame, source = read_points(path, layer=name, x=x, y=y, crs=crs, thousands=thousands)
             if INPUT_CAMPAIGN in frame.columns:
                 raise InputError(f"{str(path)!r} already has a column {INPUT_CAMPAIGN!r}; rename it to stack one input per campaign.")
             frame = frame.copy()
@@ -131,7 +132,8 @@ def campaigns_file(inputs: list, out_path, config: CampaignConfig, *, layer: str
     CampaignRun
     """
     started = time.perf_counter()
-    frame, source, order = read_campaign_inputs(inputs, layer=layer, x=x, y=y, crs=config.screen.crs)
+    frame, source, order = read_campaign_inputs(inputs, layer=layer, x=x, y=y, crs=config.screen.crs,
+                                                thousands=config.screen.thousands)
     if order is not None and config.campaign is None:
         import dataclasses
 

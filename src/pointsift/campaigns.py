@@ -19,24 +19,25 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
 
 import geopandas as gpd
 import numpy as np
 import pandas as pd
 
+from .campaign_layers import changes_layer, wells_layer
+from .campaign_pairs import change_columns, change_tasks, plan_pairs
 from .campaign_forming import assign_campaigns, choose_representatives, parse_campaign_window
 from .campaign_verdict import READING_COLUMNS, decide_readings
-from .config import ScreenConfig
+from .config import OPTIONS, OptionError, ScreenConfig, check_config_fields, check_fields, convert, spell
 from .errors import ConfigError, InputError
 from .graph import build_graph, coincident_groups
 from .io import SourceInfo
 from .methods.change import change_screen
-from .methods.history import history_screen, last_digit, relative_series, series_statistics, theil_sen
+from .methods.history import history_screen, last_digit, relative_series, series_statistics
 from .methods.local import _masked_median
 from .pipeline import automatic_max_distance, screen_frame
 from .prepare import prepare
-from .record import CAUTION, library_versions
+from .record import run_record
 from .verdict import STATUSES
 
 __all__ = ["CampaignConfig", "CampaignResult", "screen_campaigns", "campaigns"]
@@ -44,7 +45,7 @@ __all__ = ["CampaignConfig", "CampaignResult", "screen_campaigns", "campaigns"]
 
 @dataclass(frozen=True)
 class CampaignConfig:
-    """Options of a campaign screen.
+    """Options of a campaign screen (each declared in :data:`pointsift.config.OPTIONS`).
 
     Parameters
     ----------
@@ -68,6 +69,12 @@ class CampaignConfig:
         Conditional permutations for Local Moran's I of the changes.
     jobs : int
         Worker processes for the per-campaign screens.
+
+    Examples
+    --------
+    >>> config = CampaignConfig(ScreenConfig(value="level_m", id="well"), date="measured", min_campaigns="8")
+    >>> config.min_campaigns, config.campaign_window
+    (8, 'spring=1-6,fall=7-12')
     """
 
     screen: ScreenConfig
@@ -81,19 +88,28 @@ class CampaignConfig:
     jobs: int = 1
 
     def __post_init__(self) -> None:
+        if not isinstance(self.screen, ScreenConfig):
+            raise ConfigError(f"screen must be a ScreenConfig, got {type(self.screen).__name__}; "
+                              "build it with ScreenConfig(value=..., id=...).")
         if self.screen.id is None:
-            raise ConfigError("A campaign screen needs the well id that joins readings across campaigns: pass --id COLUMN.")
+            raise OptionError(f"A campaign screen needs the well id that joins readings across campaigns: pass "
+                              f"{spell('id', 'COLUMN')}.", option="id",
+                              problem="needs the well id column that joins readings across campaigns.")
+        check_fields(self)
+        object.__setattr__(self, "jobs", convert("jobs", self.jobs))
+        for name in ("campaign_window", "min_campaigns", "min_campaign_readings", "change_permutations", "jobs"):
+            if getattr(self, name) is None:
+                raise OptionError(f"{spell(name)} needs a value; leave it out for the default.", option=name,
+                                  problem="needs a value; leave it out for the default.")
         if self.date is None and self.campaign is None:
-            raise ConfigError("Say when each reading was taken: pass --date COLUMN (campaigns from dates) or --campaign COLUMN.")
-        parse_campaign_window(self.campaign_window)
-        for name, low in (("min_campaigns", 3), ("min_campaign_readings", 5), ("jobs", 1)):
-            value = getattr(self, name)
-            if not (isinstance(value, int) and value >= low):
-                raise ConfigError(f"{name} must be a whole number of at least {low}, got {value!r}.")
-        if self.change_span is not None and not (isinstance(self.change_span, int) and self.change_span >= 2):
-            raise ConfigError(f"change_span must be a whole number of campaigns, at least 2, got {self.change_span!r}.")
-        if not (isinstance(self.change_permutations, int) and 99 <= self.change_permutations <= 100_000):
-            raise ConfigError(f"change_permutations must be a whole number from 99 to 100000, got {self.change_permutations!r}.")
+            text = (f"Say when each reading was taken: pass {spell('date', 'COLUMN')} (campaigns from dates) or "
+                    f"{spell('campaign', 'COLUMN')}.")
+            raise OptionError(text, option="date", problem=text, names=("date", "campaign"))
+        try:
+            parse_campaign_window(self.campaign_window)
+        except ConfigError as exc:
+            raise OptionError(f"{spell('campaign_window', self.campaign_window)}: {exc}", option="campaign_window",
+                              problem=str(exc)) from None
 
     def as_record(self) -> dict:
         """Options as plain values, for the run record."""
@@ -101,6 +117,10 @@ class CampaignConfig:
                                                 "min_campaign_readings", "change_permutations", "jobs")}
         record["screen"] = self.screen.as_record()
         return record
+
+
+# every CampaignConfig field but the nested screen and jobs (read by the command) is in the option table
+check_config_fields(CampaignConfig, "campaign", others=("screen", "jobs"))
 
 
 @dataclass
@@ -224,87 +244,6 @@ def _regional(values, well_median, well, rows, graph):
     return _masked_median(anomaly[safe], graph.mask)
 
 
-def _plan_pairs(matrix, span: int, min_neighbours: int):
-    """Campaign pairs to screen: each well's change since its previous reading (within ``span`` campaigns) and over ``span``.
-
-    Returns
-    -------
-    pairs : dict
-        ``(a, b) -> (wells measured in both, their rows at b, their rows at a)``, rows at b sorted.
-    consecutive : list of (a, b, wells whose previous reading is at a)
-    spans : list of (a, b)
-    """
-    n_wells, n_campaigns = matrix.shape
-    present = matrix >= 0
-    last_seen = np.full(n_wells, -1, dtype=np.int64)
-    pairs: dict = {}
-    consecutive, spans = [], []
-
-    def add(a, b):
-        if (a, b) not in pairs:
-            both = np.flatnonzero(present[:, a] & present[:, b])
-            rows_b, rows_a = matrix[both, b], matrix[both, a]
-            order = np.argsort(rows_b)
-            pairs[(a, b)] = (both[order], rows_b[order], rows_a[order]) if both.size > min_neighbours else None
-        return pairs[(a, b)] is not None
-
-    for b in range(n_campaigns):
-        here = np.flatnonzero(present[:, b])
-        prev = last_seen[here]
-        for a in np.unique(prev[(prev >= 0) & (b - prev <= span)]):
-            if add(int(a), b):
-                consecutive.append((int(a), b, here[prev == a]))
-        if b - span >= 0 and add(b - span, b):
-            spans.append((b - span, b))
-        last_seen[here] = b
-    return {k: v for k, v in pairs.items() if v is not None}, consecutive, spans
-
-
-def _change_tasks(pairs, values, xy, config: CampaignConfig, cache):
-    keys = list(pairs)
-    tasks = []
-    for a, b in keys:
-        _, rows_b, rows_a = pairs[(a, b)]
-        tasks.append(("change", (xy[rows_b], values[rows_b] - values[rows_a], cache.get(rows_b), config.screen,
-                                 config.change_permutations, config.screen.seed + b)))
-    return keys, tasks
-
-
-def _change_columns(n, pairs, results: dict, consecutive, spans):
-    """Per-row change columns and the ``changes`` layer records from the screened pairs."""
-    cols = {k: np.full(n, np.nan) for k in ("change", "expected_change", "change_z", "nb_median", "nb_sd",
-                                              "span_change", "span_expected", "span_z", "span_nb_median", "span_nb_sd")}
-    cols["change_from"] = np.full(n, -1, dtype=np.int64)
-    cols["span_from"] = np.full(n, -1, dtype=np.int64)
-    cols["coherent"] = np.zeros(n, dtype=bool)
-    cols["span_coherent"] = np.zeros(n, dtype=bool)
-    cols["nb_count"] = np.zeros(n, dtype=np.int64)
-    cols["moving_with"] = np.zeros(n, dtype=np.int64)
-    cols["span_moving_with"] = np.zeros(n, dtype=np.int64)
-    records = []
-    for a, b, wells in consecutive:
-        both, rows_b, _ = pairs[(a, b)]
-        take = np.isin(both, wells)
-        r, o = rows_b[take], results[(a, b)][take]
-        for col, name in (("change", "change"), ("expected_change", "expected_change"), ("change_z", "change_z"),
-                          ("nb_median", "neighbour_median_change"), ("nb_sd", "neighbour_change_sd"),
-                          ("nb_count", "change_neighbour_count"), ("coherent", "change_coherent"),
-                          ("moving_with", "neighbours_moving_with")):
-            cols[col][r] = o[name].to_numpy()
-        cols["change_from"][r] = a
-        records.append(("consecutive", a, b, r, o))
-    for a, b in spans:
-        _, rows_b, _ = pairs[(a, b)]
-        o = results[(a, b)]
-        for col, name in (("span_change", "change"), ("span_expected", "expected_change"), ("span_z", "change_z"),
-                          ("span_nb_median", "neighbour_median_change"), ("span_nb_sd", "neighbour_change_sd"),
-                          ("span_coherent", "change_coherent"), ("span_moving_with", "neighbours_moving_with")):
-            cols[col][rows_b] = o[name].to_numpy()
-        cols["span_from"][rows_b] = a
-        records.append(("span", a, b, rows_b, o))
-    return cols, records
-
-
 def _history(matrix, values, regional, campaigns_info, config: CampaignConfig):
     """Run the history rules on every well; per-row evidence arrays."""
     n = values.size
@@ -366,61 +305,127 @@ def _history(matrix, values, regional, campaigns_info, config: CampaignConfig):
     return out
 
 
-def _wells_layer(frame, result_cols, well_codes, well_names, ref_row, matrix, campaigns_info, days, moved_rows, shift, status):
-    """One point per well (input CRS): readings, campaigns, counts per status, latest status, Theil-Sen trend."""
-    n_wells = well_names.size
-    rows_all = pd.Series(np.arange(len(frame)))[well_codes >= 0]
-    per_well = rows_all.groupby(well_codes[well_codes >= 0])
-    readings = np.zeros(n_wells, dtype=np.int64)
-    readings[per_well.size().index.to_numpy()] = per_well.size().to_numpy()
-    records = []
-    for w in range(n_wells):
-        codes = np.flatnonzero(matrix[w] >= 0)
-        rows = matrix[w, codes]
-        t = days[rows] / 365.2425 + 1970.0
-        if not np.isfinite(t).all():
-            t = campaigns_info.decimal_year[codes]
-        slope, _ = theil_sen(t, result_cols["value"][rows]) if rows.size >= 2 else (np.nan, np.nan)
-        records.append({
-            "campaigns": int(codes.size),
-            "first_campaign": campaigns_info.labels[codes[0]] if codes.size else "",
-            "last_campaign": campaigns_info.labels[codes[-1]] if codes.size else "",
-            "latest_status": status[rows[-1]] if rows.size else "unscreened",
-            "trend_per_year": round(float(slope), 6) if np.isfinite(slope) else np.nan,
-            "readings_away_from_usual_location": int(np.isin(rows, moved_rows).sum()),
-            "largest_location_shift_m": round(float(np.nanmax(shift[rows])), 2) if rows.size and np.isfinite(shift[rows]).any() else np.nan,
-        })
-    table = pd.DataFrame(records)
-    table.insert(0, "readings", readings)
-    table.insert(0, "well_id", well_names)
-    counts = pd.crosstab(well_codes[well_codes >= 0], status[well_codes >= 0]).reindex(index=range(n_wells), columns=list(STATUSES), fill_value=0)
-    for s in STATUSES:
-        table[f"readings_{s}"] = counts[s].to_numpy()
-    geometry = frame.geometry.array[np.maximum(ref_row, 0)]
-    geometry = np.where(ref_row >= 0, geometry, None)
-    return gpd.GeoDataFrame(table, geometry=list(geometry), crs=frame.crs)
+def _refuse_added_columns(frame) -> None:
+    added_lower = {c.lower() for c in READING_COLUMNS}
+    clash = [str(c) for c in frame.columns if str(c).lower() in added_lower]
+    if clash:
+        raise InputError(f"The input already has column(s) {', '.join(clash)} (is it a pointsift output?). Rename or drop them.")
 
 
-def _changes_layer(frame, records, well_names, well_codes, labels):
-    """One point per well and campaign pair screened (input CRS)."""
-    parts = []
-    for kind, a, b, rows, out in records:
-        o = out.loc[:, ["change", "expected_change", "neighbour_median_change", "neighbour_change_sd", "change_z",
-                        "change_coherent", "change_neighbour_count", "change_moran_quadrant"]].reset_index(drop=True)
-        o.insert(0, "to_campaign", labels[b])
-        o.insert(0, "from_campaign", labels[a])
-        o.insert(0, "pair", kind)
-        o.insert(0, "well_id", well_names[well_codes[rows]])
-        o["reading_row"] = rows + 1
-        parts.append((o, rows))
-    if not parts:
-        empty = pd.DataFrame(columns=["well_id", "pair", "from_campaign", "to_campaign", "change", "expected_change", "change_z"])
-        return gpd.GeoDataFrame(empty, geometry=gpd.GeoSeries([], crs=frame.crs), crs=frame.crs)
-    table = pd.concat([p for p, _ in parts], ignore_index=True)
-    rows = np.concatenate([r for _, r in parts])
-    table = table.rename(columns={"change_coherent": "neighbours_changed_alike", "change_neighbour_count": "neighbour_count",
-                                  "change_moran_quadrant": "local_moran_quadrant"})
-    return gpd.GeoDataFrame(table, geometry=frame.geometry.array[rows], crs=frame.crs)
+def _well_codes(ids: pd.Series):
+    """Dense well codes per row (-1 where the id is blank), the well names, and which rows have no id."""
+    raw_id = ids.astype("object").map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+    well_codes, well_names = pd.factorize(raw_id.to_numpy(dtype=object))
+    well_names = np.asarray(well_names, dtype=object)
+    missing_id = raw_id.to_numpy() == ""
+    if missing_id.any():
+        blank = int(np.flatnonzero(well_names == "")[0]) if (well_names == "").any() else -1
+        well_codes = np.where(missing_id, -1, well_codes)
+        if blank >= 0:  # keep codes dense: drop the blank name
+            well_codes = np.where(well_codes > blank, well_codes - 1, well_codes)
+            well_names = np.delete(well_names, blank)
+    return well_codes, well_names, missing_id
+
+
+def _representatives(prepared, missing_id, info, well_codes, n_wells: int, where: str):
+    """Each row's reason for being left out (or ""), the representative readings, the rows they represent,
+    and the (well x campaign) matrix of representative rows (-1: no reading)."""
+    reasons = prepared.unscreened_reason.copy()
+    reasons = np.where((reasons == "") & missing_id, "no well id", reasons)
+    reasons = np.where((reasons == "") & (info.reason != ""), info.reason, reasons).astype(object)
+    usable = prepared.usable & (reasons == "")
+    if not usable.any():
+        raise InputError(f"No reading of {where} has a well id, a campaign, a location and a value (first reason: {reasons[0]}).")
+    rep, represented_by = choose_representatives(well_codes, info, usable)
+    matrix = np.full((n_wells, len(info.labels)), -1, dtype=np.int64)
+    matrix[well_codes[rep], info.code[rep]] = np.flatnonzero(rep)
+    return reasons, rep, represented_by, matrix
+
+
+def _locations(xy, well_codes, rep, n_wells: int, sc: ScreenConfig):
+    """Each well's usual spot, the readings away from it, each well's nearest other well, the neighbour fence.
+
+    Returns ``(reference row per well, shift per row in metres, moved rows, nearest distance per well,
+    max_distance)``.
+    """
+    from scipy.spatial import cKDTree
+
+    n = xy.shape[0]
+    ref_row = _reference_locations(xy, well_codes, rep, n_wells)
+    shift = np.full(n, np.nan)
+    shift[rep] = np.hypot(*(xy[rep] - xy[ref_row[well_codes[rep]]]).T)
+    moved = rep & (shift > sc.coincident_tolerance)
+    ref_xy = xy[ref_row[ref_row >= 0]]
+    distinct = np.unique(ref_xy, axis=0)
+    nearest = np.full(n_wells, np.inf)
+    if distinct.shape[0] >= 2:
+        d, _ = cKDTree(distinct).query(xy[np.maximum(ref_row, 0)], k=2)
+        nearest = np.where(d[:, 0] > 0, d[:, 0], d[:, 1])
+    max_distance = sc.max_distance if sc.max_distance is not None else automatic_max_distance(ref_xy)
+    return ref_row, shift, moved, nearest, max_distance
+
+
+def _campaign_and_change_screens(frame, prepared, rep, info, matrix, span: int, cache, config: CampaignConfig):
+    """Every campaign large enough through the single-campaign pipeline, every campaign pair's changes through
+    the change screen, in one pool of workers.
+
+    Returns ``(campaign columns, change columns, changes-layer records, campaigns screened)``.
+    """
+    sc = config.screen
+    n, xy, values = prepared.n, prepared.xy, prepared.values
+    # campaigns are screened in the work CRS (already computed): same distances,
+    # no reprojection per campaign; the single screen's columns are all the campaign screen keeps
+    located = np.isfinite(xy).all(axis=1)
+    work_geometry = np.full(n, None, dtype=object)
+    work_geometry[located] = gpd.points_from_xy(xy[located, 0], xy[located, 1])
+    work_frame = gpd.GeoDataFrame(pd.DataFrame(frame.drop(columns=frame.geometry.name)), geometry=list(work_geometry),
+                                  crs=prepared.work_crs)
+    work = sc.replace(crs=None, work_crs=None)
+    camp = {"status": np.full(n, "", dtype=object), "score": np.full(n, np.nan), "reasons": np.full(n, "", dtype=object),
+            "expected": np.full(n, np.nan), "z": np.full(n, np.nan), "coherent": np.zeros(n, dtype=bool)}
+    tasks = []
+    for c in range(len(info.labels)):
+        rows = np.flatnonzero(rep & (info.code == c))
+        if rows.size < config.min_campaign_readings:
+            camp["reasons"][rows] = (f"campaign {info.labels[c]} has {rows.size} reading{'s' if rows.size != 1 else ''} "
+                                     f"(at least {config.min_campaign_readings} needed for the campaign screen)")
+        else:
+            tasks.append((c, rows))
+    pairs, consecutive, spans = plan_pairs(matrix, span, sc.min_neighbours)
+    pair_keys, pair_tasks = change_tasks(pairs, values, xy, config, cache)
+    results = _run_tasks([("campaign", (work_frame.iloc[rows], work)) for _, rows in tasks] + pair_tasks, config.jobs)
+    for (c, rows), got in zip(tasks, results[: len(tasks)]):
+        if isinstance(got, str):
+            camp["reasons"][rows] = f"campaign {info.labels[c]} not screened: {got}"
+            continue
+        for key, column in (("status", "screen_status"), ("score", "screen_score"), ("reasons", "screen_reasons"),
+                            ("expected", "expected_value"), ("z", "local_residual_z"), ("coherent", "coherent")):
+            camp[key][rows] = got[column]
+    change, records = change_columns(n, pairs, dict(zip(pair_keys, results[len(tasks):])), consecutive, spans)
+    return camp, change, records, len(tasks)
+
+
+def _regional_levels(values, well_codes, rep, info, n_wells: int, cache, min_neighbours: int):
+    """Each well's median level, and per representative reading the neighbours' median anomaly."""
+    well_median = np.full(n_wells, np.nan)
+    rep_rows = np.flatnonzero(rep)
+    med = pd.Series(values[rep_rows]).groupby(well_codes[rep_rows]).median()
+    well_median[med.index.to_numpy()] = med.to_numpy()
+    regional = np.full(values.size, np.nan)
+    for c in range(len(info.labels)):
+        rows = np.flatnonzero(rep & (info.code == c))
+        if rows.size > min_neighbours:
+            regional[rows] = _regional(values, well_median, well_codes, rows, cache.get(rows))
+    return well_median, regional
+
+
+def _previous_rows(matrix, n: int):
+    """Per representative reading, the row of the same well's previous representative reading (-1: none)."""
+    prev_row = np.full(n, -1, dtype=np.int64)
+    for w in range(matrix.shape[0]):
+        rows = matrix[w][matrix[w] >= 0]
+        prev_row[rows[1:]] = rows[:-1]
+    return prev_row
 
 
 def screen_campaigns(
@@ -452,165 +457,74 @@ def screen_campaigns(
     started = time.perf_counter()
     timings: dict[str, float] = {}
     sc = config.screen
-    added_lower = {c.lower() for c in READING_COLUMNS}
-    clash = [str(c) for c in frame.columns if str(c).lower() in added_lower]
-    if clash:
-        raise InputError(f"The input already has column(s) {', '.join(clash)} (is it a pointsift output?). Rename or drop them.")
+    _refuse_added_columns(frame)
     where = (f"layer {source.layer!r} of {source.path!r}" if source.layer else repr(source.path)) if source else "the readings"
     prepared = prepare(frame, sc, where=where)
     n = prepared.n
-    raw_id = frame[sc.id].astype("object").map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
-    well_codes, well_names = pd.factorize(raw_id.to_numpy(dtype=object))
-    well_names = np.asarray(well_names, dtype=object)
-    missing_id = raw_id.to_numpy() == ""
-    if missing_id.any():
-        blank = int(np.flatnonzero(well_names == "")[0]) if (well_names == "").any() else -1
-        well_codes = np.where(missing_id, -1, well_codes)
-        if blank >= 0:  # keep codes dense: drop the blank name
-            well_codes = np.where(well_codes > blank, well_codes - 1, well_codes)
-            well_names = np.delete(well_names, blank)
+    well_codes, well_names, missing_id = _well_codes(frame[sc.id])
     window = parse_campaign_window(config.campaign_window)
     info = assign_campaigns(frame, date=config.date, campaign=config.campaign, window=window, campaign_order=campaign_order)
-    reasons = prepared.unscreened_reason.copy()
-    reasons = np.where((reasons == "") & missing_id, "no well id", reasons)
-    reasons = np.where((reasons == "") & (info.reason != ""), info.reason, reasons).astype(object)
-    usable = prepared.usable & (reasons == "")
-    if not usable.any():
-        raise InputError(f"No reading of {where} has a well id, a campaign, a location and a value (first reason: {reasons[0]}).")
-    rep, represented_by = choose_representatives(well_codes, info, usable)
-    n_wells, n_campaigns = well_names.size, len(info.labels)
-    matrix = np.full((n_wells, n_campaigns), -1, dtype=np.int64)
-    matrix[well_codes[rep], info.code[rep]] = np.flatnonzero(rep)
+    reasons, rep, represented_by, matrix = _representatives(prepared, missing_id, info, well_codes, well_names.size,
+                                                            where)
+    n_wells, n_campaigns = matrix.shape
     values, xy = prepared.values, prepared.xy
     timings["prepare_s"] = time.perf_counter() - started
+    ref_row, shift, moved, nearest, max_distance = _locations(xy, well_codes, rep, n_wells, sc)
 
-    # --- locations: each well's usual spot, and readings away from it -------------
-    ref_row = _reference_locations(xy, well_codes, rep, n_wells)
-    shift = np.full(n, np.nan)
-    shift[rep] = np.hypot(*(xy[rep] - xy[ref_row[well_codes[rep]]]).T)
-    moved = rep & (shift > sc.coincident_tolerance)
-    ref_xy = xy[ref_row[ref_row >= 0]]
-    from scipy.spatial import cKDTree
-
-    distinct = np.unique(ref_xy, axis=0)
-    nearest = np.full(n_wells, np.inf)
-    if distinct.shape[0] >= 2:
-        d, _ = cKDTree(distinct).query(xy[np.maximum(ref_row, 0)], k=2)
-        nearest = np.where(d[:, 0] > 0, d[:, 0], d[:, 1])
-    max_distance = sc.max_distance if sc.max_distance is not None else automatic_max_distance(ref_xy)
-
-    # --- 1. each campaign through the single-campaign screen, and each campaign pair's
-    #        changes through the change screen (one pool of workers for both)
+    # 1. each campaign through the single-campaign screen, and each campaign pair's changes
+    #    through the change screen (one pool of workers for both)
     t = time.perf_counter()
-    # campaigns are screened in the work CRS (already computed): same distances,
-    # no reprojection per campaign; the single screen's columns are all the campaign screen keeps
-    located = np.isfinite(xy).all(axis=1)
-    work_geometry = np.full(n, None, dtype=object)
-    work_geometry[located] = gpd.points_from_xy(xy[located, 0], xy[located, 1])
-    work_frame = gpd.GeoDataFrame(pd.DataFrame(frame.drop(columns=frame.geometry.name)), geometry=list(work_geometry),
-                                  crs=prepared.work_crs)
-    work = sc.replace(crs=None, work_crs=None)
-    camp = {"status": np.full(n, "", dtype=object), "score": np.full(n, np.nan), "reasons": np.full(n, "", dtype=object),
-            "expected": np.full(n, np.nan), "z": np.full(n, np.nan), "coherent": np.zeros(n, dtype=bool)}
-    tasks = []
-    for c in range(n_campaigns):
-        rows = np.flatnonzero(rep & (info.code == c))
-        if rows.size < config.min_campaign_readings:
-            camp["reasons"][rows] = (f"campaign {info.labels[c]} has {rows.size} reading{'s' if rows.size != 1 else ''} "
-                                     f"(at least {config.min_campaign_readings} needed for the campaign screen)")
-        else:
-            tasks.append((c, rows))
     span = config.change_span or (window.per_year if config.campaign is None and window.per_year >= 2 else 2)
-    pairs, consecutive, spans = _plan_pairs(matrix, span, sc.min_neighbours)
     cache = _GraphCache(xy, well_codes, sc, max_distance)
-    pair_keys, change_tasks = _change_tasks(pairs, values, xy, config, cache)
-    results = _run_tasks([("campaign", (work_frame.iloc[rows], work)) for _, rows in tasks] + change_tasks, config.jobs)
-    for (c, rows), got in zip(tasks, results[: len(tasks)]):
-        if isinstance(got, str):
-            camp["reasons"][rows] = f"campaign {info.labels[c]} not screened: {got}"
-            continue
-        camp["status"][rows] = got["screen_status"]
-        camp["score"][rows] = got["screen_score"]
-        camp["reasons"][rows] = got["screen_reasons"]
-        camp["expected"][rows] = got["expected_value"]
-        camp["z"][rows] = got["local_residual_z"]
-        camp["coherent"][rows] = got["coherent"]
-    change, records = _change_columns(n, pairs, dict(zip(pair_keys, results[len(tasks):])), consecutive, spans)
+    camp, change, records, screened = _campaign_and_change_screens(frame, prepared, rep, info, matrix, span, cache,
+                                                                   config)
     timings["campaign_and_change_screens_s"] = time.perf_counter() - t
 
-    # --- 2. neighbours' shared movement (the regional part each history is relative to)
+    # 2. neighbours' shared movement (the regional part each history is relative to)
     t = time.perf_counter()
-    well_median = np.full(n_wells, np.nan)
-    rep_rows = np.flatnonzero(rep)
-    med = pd.Series(values[rep_rows]).groupby(well_codes[rep_rows]).median()
-    well_median[med.index.to_numpy()] = med.to_numpy()
-    regional = np.full(n, np.nan)
-    for c in range(n_campaigns):
-        rows = np.flatnonzero(rep & (info.code == c))
-        if rows.size > sc.min_neighbours:
-            regional[rows] = _regional(values, well_median, well_codes, rows, cache.get(rows))
+    well_median, regional = _regional_levels(values, well_codes, rep, info, n_wells, cache, sc.min_neighbours)
     timings["regional_s"] = time.perf_counter() - t
 
-    # --- 3. each well's own history -----------------------------------------------
+    # 3. each well's own history
     t = time.perf_counter()
     history = _history(matrix, values, regional, info, config)
     history["_well"] = well_codes
     timings["history_s"] = time.perf_counter() - t
 
-    # --- 4. one verdict per reading ------------------------------------------------
+    # 4. one verdict per reading
     t = time.perf_counter()
     labels = np.asarray(info.labels, dtype=object)
-    prev_row = np.full(n, -1, dtype=np.int64)
-    for w in range(n_wells):
-        rows = matrix[w][matrix[w] >= 0]
-        prev_row[rows[1:]] = rows[:-1]
     verdict = decide_readings(
         n=n, reasons=reasons, representative=rep, represented_by=represented_by, campaign_code=info.code,
-        labels=labels, values=values, camp=camp, change=change, history=history, prev_row=prev_row,
+        labels=labels, values=values, camp=camp, change=change, history=history, prev_row=_previous_rows(matrix, n),
         shift=shift, moved=moved, nearest=nearest[np.maximum(well_codes, 0)], days=info.days, config=sc,
         span=span, min_campaigns=config.min_campaigns,
         season=np.where(info.code >= 0, np.asarray(info.season, dtype=object)[np.maximum(info.code, 0)], ""),
     )
     timings["verdict_s"] = time.perf_counter() - t
 
-    out = frame.copy()
     neighbour_level = np.where(np.isfinite(regional), regional + well_median[np.maximum(well_codes, 0)], np.nan)
     verdict["neighbours_median_level"] = np.round(neighbour_level, 6)
     verdict["campaign_label"] = np.where(info.code >= 0, labels[np.maximum(info.code, 0)], "")
+    out = frame.copy()
     for name in READING_COLUMNS:
         out[name] = verdict[name]
     status = out["reading_status"].to_numpy()
     counts = {s: int((status == s).sum()) for s in STATUSES}
-    wells = _wells_layer(frame, {"value": values}, well_codes, well_names, ref_row, matrix, info, info.days,
+    wells = wells_layer(frame, {"value": values}, well_codes, well_names, ref_row, matrix, info, info.days,
                          np.flatnonzero(moved), shift, status)
-    changes = _changes_layer(frame, records, well_names, well_codes, labels)
-    moved_wells = sorted({str(well_names[well_codes[r]]) for r in np.flatnonzero(moved)})
+    changes = changes_layer(frame, records, well_names, well_codes, labels)
     timings["total_s"] = time.perf_counter() - started
-    run_info = {
-        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "command": "campaigns",
-        "input_path": source.path if source else None,
-        "input_layer": source.layer if source else None,
-        "input_sha256": source.sha256 if source else None,
-        "rows": int(n),
-        "wells": int(n_wells),
-        "campaigns": int(n_campaigns),
-        "campaigns_screened": int(len(tasks)),
-        "campaign_rule": (f"label column {config.campaign!r}" if config.campaign else f"windows {config.campaign_window!r} on {config.date!r}"),
-        "representative_readings": int(rep.sum()),
-        "extra_readings": int((represented_by >= 0).sum()),
-        "change_span_campaigns": int(span),
-        "neighbour_graphs": {"built": cache.built, "reused": cache.reused},
-        "moved_wells": moved_wells,
-        "input_crs": prepared.input_crs.to_string(),
-        "work_crs": prepared.work_crs.to_string(),
-        "parameters": config.as_record(),
-        "counts": counts,
-        "notes": list(prepared.notes),
-        "timings_s": {k: round(v, 4) for k, v in timings.items()},
-        "versions": library_versions(),
-        "caution": CAUTION,
-    }
+    run_info = run_record(
+        "campaigns", config=sc, prepared=prepared, source=source, parameters=config.as_record(),
+        wells=int(n_wells), campaigns=int(n_campaigns), campaigns_screened=int(screened),
+        campaign_rule=(f"label column {config.campaign!r}" if config.campaign
+                       else f"windows {config.campaign_window!r} on {config.date!r}"),
+        representative_readings=int(rep.sum()), extra_readings=int((represented_by >= 0).sum()),
+        change_span_campaigns=int(span), neighbour_graphs={"built": cache.built, "reused": cache.reused},
+        moved_wells=sorted({str(well_names[well_codes[r]]) for r in np.flatnonzero(moved)}),
+        counts=counts, timings_s={k: round(v, 4) for k, v in timings.items()},
+    )
     series = {"matrix": matrix, "neighbour_level": neighbour_level, "values": values, "campaign_year": info.decimal_year,
               "well_names": well_names}
     return CampaignResult(out, wells, changes, run_info, counts, series, info.labels)
@@ -639,7 +553,7 @@ def campaigns(gdf: gpd.GeoDataFrame, value: str, id: str, *, date: str | None = 
     geopandas.GeoDataFrame
         The ``readings`` layer.
     """
-    campaign_keys = {"change_span", "min_campaigns", "min_campaign_readings", "change_permutations", "jobs"}
+    campaign_keys = {o.name for o in OPTIONS.values() if o.config == "campaign"} | {"jobs"}
     screen_options = {k: v for k, v in options.items() if k not in campaign_keys}
     config = CampaignConfig(
         screen=ScreenConfig(value=value, id=id, **screen_options), date=date, campaign=campaign,

@@ -8,8 +8,8 @@ table come
 
 * the command-line options of each command (:func:`pointsift.cli.options`),
 * the keys a batch plan accepts and their checks (:mod:`pointsift.batch.plan`),
-* the validation of :class:`ScreenConfig` and :class:`DescribeConfig`
-  (the Python API).
+* the validation of :class:`ScreenConfig`, :class:`DescribeConfig` and
+  :class:`ReportConfig` (the Python API).
 
 Messages name an option in the caller's own words (:func:`spell`): ``--crs``
 on the command line, ``crs=`` in Python, ``crs`` in a plan. The caller is set
@@ -41,6 +41,7 @@ __all__ = [
     "COMMANDS",
     "ScreenConfig",
     "DescribeConfig",
+    "ReportConfig",
     "OptionError",
     "parse_length",
     "convert",
@@ -58,7 +59,7 @@ __all__ = [
 DEFAULT_SENTINELS: tuple[float, ...] = (-9999.0, -999.0, -99999.0)
 
 #: Commands whose options come from the table.
-COMMANDS = ("screen", "describe", "batch")
+COMMANDS = ("screen", "describe", "batch", "campaigns")
 #: What the value column measures (see ``ScreenConfig.quantity``).
 QUANTITIES = ("level", "depth", "concentration", "other")
 TRANSFORMS = ("none", "log", "auto")
@@ -110,16 +111,20 @@ def spell(name: str, example=None) -> str:
 # --------------------------------------------------------------------------- the table
 
 
-_READ = ("screen", "describe", "batch")
-_SCREEN = ("screen", "batch")
+_SCREEN = ("screen", "batch", "campaigns")
+_REPORT = ("screen", "describe", "batch")
+_CAMPAIGNS = ("campaigns",)
+_ENTRY = ("defaults", "input")
 
 OPTIONS: dict[str, Option] = {
     option.name: option
     for option in (
         # --- reading the layer (every command)
-        Option("value", "text", "Column holding the measured values", required=("screen", "describe"), metavar="COLUMN"),
-        Option("id", "text", "Column identifying each point in reasons and tables", default_text="the row number",
-               flag="id", dest="id_column", metavar="COLUMN"),
+        Option("value", "text", "Column holding the measured values", required=("screen", "describe", "campaigns"),
+               metavar="COLUMN"),
+        Option("id", "text", "Column identifying each point in reasons and tables (campaigns: the well id joining "
+               "readings across campaigns)", default_text="the row number", flag="id", dest="id_column",
+               metavar="COLUMN"),
         Option("crs", "text", "CRS of the coordinates when the file has none, e.g. EPSG:4326", metavar="CRS"),
         Option("work_crs", "text", "Metric CRS to compute distances in", default_text="chosen from the data", metavar="CRS"),
         Option("sentinels", "numbers", "Comma-separated no-data codes ('none' for none)", default=DEFAULT_SENTINELS,
@@ -196,9 +201,36 @@ OPTIONS: dict[str, Option] = {
                config="describe", commands=("describe",), plan=()),
         Option("bin_width", "float", "Histogram bin width", minimum=0.0, min_open=True,
                default_text="Freedman-Diaconis", config="describe", commands=("describe",), plan=()),
+        # --- the report (screen --report, describe --report, batch report = true)
+        Option("report_labels", "int", "Suspects named by id on the report's map, strongest first; the others carry "
+               "a number listed under the map", default=80, minimum=0, maximum=100_000, config="report",
+               commands=_REPORT),
+        Option("report_points", "int", "The report's maps and clouds draw about this many points at most (density "
+               "shading or a stated seeded sample beyond; tables keep every row)", default=50_000, minimum=100,
+               config="report", commands=_REPORT),
+        Option("report_title", "text", "Title of the report page", default_text="from the value column and the input",
+               config="report", commands=_REPORT, metavar="TEXT"),
+        # --- repeated campaigns (CampaignConfig; docs/campaigns.md)
+        Option("date", "text", "Date column; campaigns are formed from it by the campaign window rule",
+               config="campaign", commands=_CAMPAIGNS, plan=_ENTRY, metavar="COLUMN"),
+        Option("campaign", "text", "Campaign label column (instead of campaigns from dates)", config="campaign",
+               commands=_CAMPAIGNS, plan=_ENTRY, metavar="COLUMN"),
+        Option("campaign_window", "text", "Rule forming campaigns from dates: NAME=FIRST-LAST months, e.g. "
+               "spring=1-6,fall=7-12, or year, or month", default="spring=1-6,fall=7-12", config="campaign",
+               commands=_CAMPAIGNS, plan=_ENTRY, metavar="RULE"),
+        Option("change_span", "int", "Campaigns between the two readings of the longer change", minimum=2,
+               default_text="a year: the same season a year earlier, or 2 campaigns", config="campaign",
+               commands=_CAMPAIGNS, plan=_ENTRY),
+        Option("min_campaigns", "int", "Readings a well needs for its history to be judged", default=6, minimum=3,
+               config="campaign", commands=_CAMPAIGNS, plan=_ENTRY),
+        Option("min_campaign_readings", "int", "Readings a campaign needs for the campaign screen", default=20,
+               minimum=5, config="campaign", commands=_CAMPAIGNS, plan=_ENTRY),
+        Option("change_permutations", "int", "Permutations for local Moran's I of the changes", default=199,
+               minimum=99, maximum=100_000, config="campaign", commands=_CAMPAIGNS, plan=_ENTRY),
         # --- which part of the input (read by the commands)
-        Option("layer", "text", "Layer to read from a multi-layer file (GeoPackage)", config=None,
-               commands=("screen", "describe"), plan=(), metavar="NAME"),
+        Option("layer", "text", "Layer to read from a multi-layer file (GeoPackage); campaigns: '*' reads every "
+               "layer as one campaign", config=None, commands=("screen", "describe", "campaigns"), plan=(),
+               metavar="NAME"),
         Option("layers", "texts", "GeoPackage layer to screen; repeat for several", default_text="every layer",
                config=None, commands=("batch",), flag="layer", multiple=True, metavar="NAME"),
         Option("x", "text", "Column of x / longitude / easting (tables)", config=None, dest="x_column",
@@ -208,6 +240,9 @@ OPTIONS: dict[str, Option] = {
         Option("by", "text", "Screen each group of this column on its own, e.g. network_id or a campaign date column",
                config=None, commands=("batch",), metavar="COLUMN"),
         # --- batch settings
+        Option("command", "choice", "What a plan entry runs: the single screen, or the screen of repeated campaigns "
+               "(the campaign keys then apply)", default="screen", choices=("screen", "campaigns"), config=None,
+               commands=(), plan=_ENTRY),
         Option("path", "texts", "Files, globs or folders of one plan entry", config=None, commands=(), plan=("input",)),
         Option("name", "text", "Output name used instead of the file's stem", config=None, commands=(),
                plan=("input",)),
@@ -216,7 +251,7 @@ OPTIONS: dict[str, Option] = {
         Option("out_dir", "text", "Folder for the outputs and the batch index", config=None, commands=("batch",),
                plan=("batch",), metavar="DIR"),
         Option("jobs", "int", "Worker processes", default=1, default_text="1, or the plan's jobs", minimum=1,
-               config=None, commands=("batch",), plan=("batch",), short="j"),
+               config=None, commands=("batch", "campaigns"), plan=("batch",), short="j"),
     )
 }
 
@@ -489,17 +524,63 @@ class DescribeConfig:
         return record
 
 
-#: Which config class holds the options of each ``Option.config`` value.
-CONFIG_CLASSES = {"screen": ScreenConfig, "describe": DescribeConfig}
+@dataclass(frozen=True)
+class ReportConfig:
+    """How the HTML report is drawn (declared in :data:`OPTIONS`); the numbers are the run's own.
+
+    Parameters
+    ----------
+    report_labels : int
+        Suspects named by id on the overview map, strongest first, where a
+        label fits; every other suspect carries its number, listed under the map.
+    report_points : int
+        Maps and clouds draw at most about this many points (density shading
+        or a stated seeded sample beyond; tables keep every row).
+    report_title : str or None
+        Page title (None: from the value column and the input).
+
+    Examples
+    --------
+    >>> ReportConfig(report_points="2000").report_points
+    2000
+    """
+
+    report_labels: int = 80
+    report_points: int = 50_000
+    report_title: str | None = None
+
+    def __post_init__(self) -> None:
+        _check_fields(self)
+        for name in ("report_labels", "report_points"):
+            if getattr(self, name) is None:
+                raise fail(OPTIONS[name], "needs a value; leave it out for the default.")
+
+    def as_record(self) -> dict:
+        """Options as plain values, for the run record and the batch fingerprint."""
+        return dataclasses.asdict(self)
 
 
-def _table_matches_configs() -> None:
-    # every field of a config is in the table under that config, and the reverse (checked at import)
-    for key, cls in CONFIG_CLASSES.items():
-        fields = {f.name for f in dataclasses.fields(cls)} - {"extra"}
-        declared = {o.name for o in OPTIONS.values() if o.config == key}
-        if fields != declared:
-            raise RuntimeError(f"{cls.__name__} fields and OPTIONS disagree: {sorted(fields ^ declared)}")
+#: Which config class holds the options of each ``Option.config`` value
+#: (``"campaign"``: :class:`pointsift.campaigns.CampaignConfig` checks itself with :func:`check_config_fields`).
+CONFIG_CLASSES = {"screen": ScreenConfig, "describe": DescribeConfig, "report": ReportConfig}
 
 
-_table_matches_configs()
+def check_config_fields(cls, key: str, others: tuple[str, ...] = ()) -> None:
+    """Refuse (at import) a config whose fields and the table's entries under ``key`` disagree.
+
+    ``others`` are fields that hold a table option declared elsewhere (a nested
+    config, or an option the command line reads itself, such as ``jobs``).
+    """
+    fields = {f.name for f in dataclasses.fields(cls)} - {"extra"} - set(others)
+    declared = {o.name for o in OPTIONS.values() if o.config == key}
+    if fields != declared:
+        raise RuntimeError(f"{cls.__name__} fields and OPTIONS disagree: {sorted(fields ^ declared)}")
+
+
+def check_fields(config) -> None:
+    """Convert every table option a frozen config holds, through :func:`convert` (for configs outside this module)."""
+    _check_fields(config)
+
+
+for _key, _cls in CONFIG_CLASSES.items():
+    check_config_fields(_cls, _key)

@@ -234,12 +234,7 @@ def describe(
                              f"pass {spell('transform', 'none')}.")
         prepared = dataclasses.replace(prepared, values=described, usable=np.isfinite(described))
         usable, values = prepared.usable, described
-    shift = None
-    if suspect_mask is not None:
-        mask = np.asarray(suspect_mask, dtype=bool)
-        if mask.shape != values.shape:
-            raise InputError(f"suspect_mask has {mask.size} entries for {values.size} rows; pass one per row.")
-        shift = summary_shift(original.values[original.usable], mask[original.usable])
+    shift = _shift_without_suspects(original, suspect_mask)
     unscreened = dict(Counter(str(r) for r in original.unscreened_reason[~original.usable]).most_common())
     stem_leaf = stem_and_leaf_table(values[usable], stem_unit, split)
     strips = strip_summary(
@@ -252,19 +247,7 @@ def describe(
     structure = spatial_structure(prepared, detrend=trend, lag_count=lag_count, lag_width=lag_width, seed=seed)
     fit, trend_info = structure.trend, structure.trend_info
     variogram, variogram_basis = structure.variogram, structure.basis
-    drawn = {}
-    if figures:
-        from .methods.strips import plot_strip_profiles
-        from .methods.summary import plot_histogram
-
-        drawn["histogram"] = plot_histogram(values[usable], bin_width, label=value_label)
-        drawn["strip_profiles"] = plot_strip_profiles(strips.table, label=value_label, flag_u=strips.flag_u)
-        if variogram is not None:
-            from .methods.variogram import plot_sqrt_difference_cloud, plot_variogram, plot_variogram_cloud
-
-            drawn["variogram"] = plot_variogram(variogram)
-            drawn["variogram_cloud"] = plot_variogram_cloud(variogram.empirical)
-            drawn["sqrt_difference_cloud"] = plot_sqrt_difference_cloud(variogram.empirical)
+    drawn = _figures(values[usable], strips, variogram, bin_width, value_label) if figures else {}
     return Description(
         prepared=original,
         summary=summary,
@@ -288,6 +271,32 @@ def describe(
         context_info=context_info,
         notes=notes,
     )
+
+
+def _shift_without_suspects(prepared: Prepared, suspect_mask):
+    """How the summary moves without the rows a screen called suspect (None without a mask)."""
+    if suspect_mask is None:
+        return None
+    mask = np.asarray(suspect_mask, dtype=bool)
+    if mask.shape != prepared.values.shape:
+        raise InputError(f"suspect_mask has {mask.size} entries for {prepared.values.size} rows; pass one per row.")
+    return summary_shift(prepared.values[prepared.usable], mask[prepared.usable])
+
+
+def _figures(values, strips, variogram, bin_width, value_label: str) -> dict:
+    """The histogram, strip profiles and variogram figures of a description (``--figures``)."""
+    from .methods.strips import plot_strip_profiles
+    from .methods.summary import plot_histogram
+
+    drawn = {"histogram": plot_histogram(values, bin_width, label=value_label),
+             "strip_profiles": plot_strip_profiles(strips.table, label=value_label, flag_u=strips.flag_u)}
+    if variogram is not None:
+        from .methods.variogram import plot_sqrt_difference_cloud, plot_variogram, plot_variogram_cloud
+
+        drawn["variogram"] = plot_variogram(variogram)
+        drawn["variogram_cloud"] = plot_variogram_cloud(variogram.empirical)
+        drawn["sqrt_difference_cloud"] = plot_sqrt_difference_cloud(variogram.empirical)
+    return drawn
 
 
 def describe_scale(prepared: Prepared, config=None, where: str = "the layer"):

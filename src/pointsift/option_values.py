@@ -115,7 +115,9 @@ class Option:
         How ``--help`` states the default (e.g. "from the spacing").
     config : str or None
         The config holding it: ``"screen"`` (:class:`ScreenConfig`),
-        ``"describe"`` (:class:`DescribeConfig`) or None (read by the
+        ``"describe"`` (:class:`DescribeConfig`), ``"report"``
+        (:class:`ReportConfig`), ``"campaign"``
+        (:class:`pointsift.campaigns.CampaignConfig`) or None (read by the
         command itself: layer, coordinate columns, batch settings).
     commands : tuple of str
         Commands offering it on the command line.
@@ -147,7 +149,7 @@ class Option:
     default: object = None
     default_text: str | None = None
     config: str | None = "screen"
-    commands: tuple[str, ...] = ("screen", "describe", "batch")
+    commands: tuple[str, ...] = ("screen", "describe", "batch", "campaigns")
     plan: tuple[str, ...] = ("defaults", "input")
     flag: str | None = None
     dest: str | None = None

@@ -62,21 +62,25 @@ def created_now() -> str:
     return datetime.now(timezone.utc).isoformat(timespec="seconds")
 
 
-def run_record(command: str, *, config, prepared, source=None, output_path=None, **sections) -> dict:
+def run_record(command: str, *, config, prepared, source=None, output_path=None, parameters: dict | None = None,
+               **sections) -> dict:
     """The common run record of one command on one input.
 
     Parameters
     ----------
     command : str
-        ``"screen"``, ``"describe"`` (a batch unit is a ``"screen"``).
+        ``"screen"``, ``"describe"``, ``"campaigns"`` (a batch unit is a ``"screen"``).
     config : ScreenConfig
-        The options used.
+        The options used (value and id columns; the parameters unless ``parameters`` is given).
     prepared : Prepared
         The prepared layer (row count, CRSs, notes).
     source : SourceInfo, optional
         Where the layer was read from (None for a frame passed in Python).
     output_path : str, optional
         The output written, when known.
+    parameters : dict, optional
+        The options as recorded, when the command has more than a screen's
+        (``campaigns``: :meth:`pointsift.campaigns.CampaignConfig.as_record`).
     **sections
         Command-specific entries (``graph=``, ``trend=``, ``variogram=``...),
         placed after the input description and before the parameters.
@@ -102,7 +106,7 @@ def run_record(command: str, *, config, prepared, source=None, output_path=None,
         "work_crs_name": prepared.work_crs.name,
     }
     record.update(sections)
-    record["parameters"] = config.as_record()
+    record["parameters"] = config.as_record() if parameters is None else parameters
     record["notes"] = list(prepared.notes)
     record["versions"] = library_versions()
     record["caution"] = CAUTION

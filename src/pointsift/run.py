@@ -83,6 +83,7 @@ def screen_file(
     report_path=None,
     summary_json_path=None,
     read=None,
+    report_config=None,
 ) -> RunResult:
     """Read ``input_path``, screen it with ``config`` and write ``out_path``.
 
@@ -112,6 +113,8 @@ def screen_file(
         ``x``, ``y`` and the config's ``crs`` and ``thousands``) and their
         provenance: the batch runner passes each group its rows, read and
         hashed once per layer. ``frame_filter`` still applies.
+    report_config : ReportConfig, optional
+        How the report is drawn (its defaults when omitted).
 
     Returns
     -------
@@ -133,7 +136,7 @@ def screen_file(
     if report_path is not None or summary_json_path is not None:
         from .report import build_report
 
-        extra = build_report(result).write(report_path, summary_json_path, protect=(os.fspath(input_path), str(written)))
+        extra = build_report(result, config=report_config).write(report_path, summary_json_path, protect=(os.fspath(input_path), str(written)))
     return RunResult(
         input_path=os.fspath(input_path),
         layer=source.layer,

@@ -6,7 +6,7 @@ import os
 import sys
 from collections.abc import Sequence
 
-from ..config import ScreenConfig, spell
+from ..config import ReportConfig, ScreenConfig, spell
 from ..errors import ConfigError
 from .outcomes import BatchResult
 from .plan import load_plan, plan_from_args
@@ -31,6 +31,7 @@ def run_command(
     x: str | None = None,
     y: str | None = None,
     stream=None,
+    report_config: ReportConfig | None = None,
 ) -> BatchResult:
     """What ``pointsift batch`` does, without click: plan, run, summary.
 
@@ -49,6 +50,8 @@ def run_command(
         Names of the screen options the caller set (a plan refuses them).
     out_dir, jobs, force, quiet, report, layers, by, x, y, stream
         As the command-line options of ``pointsift batch``.
+    report_config : ReportConfig, optional
+        How the reports of the direct form are drawn (a plan sets its own).
 
     Returns
     -------
@@ -77,7 +80,7 @@ def run_command(
         if out_dir is None:
             raise ConfigError(f"Name the output folder with {spell('out_dir', 'DIR')} (or give a PLAN.toml that sets out_dir).")
         plan = plan_from_args(list(inputs), out_dir=out_dir, config=config, layers=list(layers) or None, by=by,
-                              x=x, y=y, report=report, jobs=jobs or 1)
+                              x=x, y=y, report=report, jobs=jobs or 1, report_config=report_config)
     progress = make_progress(quiet, stream)
     result = run_batch(plan, force=force, progress=progress)
     if not quiet:

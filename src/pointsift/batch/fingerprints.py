@@ -22,7 +22,7 @@ def unit_fingerprint(unit: Unit, input_sha256: str, version: str | None = None) 
 
     It covers the input file's content hash, the layer, the grouping column
     and group, the coordinate columns, every effective screen option, whether
-    a report is written, and the pointsift version; it does not cover the
+    a report is written and how it is drawn, and the pointsift version; it does not cover the
     input's path, so moving the data does not redo finished work.
 
     Parameters
@@ -49,6 +49,11 @@ def unit_fingerprint(unit: Unit, input_sha256: str, version: str | None = None) 
         "options": unit.config.as_record(),
         "pointsift": version if version is not None else __version__,
     }
+    if unit.report:  # how a report is drawn matters only when one is written
+        record["report_options"] = unit.report_config.as_record()
+    if unit.command != "screen":
+        record["command"] = unit.command
+        record["campaign_options"] = unit.campaign.as_record()
     text = json.dumps(record, sort_keys=True, default=str, separators=(",", ":"))
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -76,6 +81,8 @@ def record_of(outcome: UnitOutcome, version: str) -> dict:
         "by": unit.by,
         "group": unit.group,
         "options": unit.config.as_record(),
+        "command": unit.command,
+        "campaign_options": unit.campaign.as_record() if unit.campaign is not None else None,
         "pointsift": version,
         "counts": outcome.counts,
         "points": outcome.points,

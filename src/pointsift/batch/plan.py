@@ -11,7 +11,8 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..config import OPTIONS, OptionError, ScreenConfig, caller, convert, current_caller, plan_keys, spell
+from ..config import (OPTIONS, OptionError, ReportConfig, ScreenConfig, caller, convert, current_caller, plan_keys,
+                      spell)
 from ..errors import ConfigError
 from .toml_lines import KeyLocator
 
@@ -38,6 +39,12 @@ class InputSpec:
         are still appended).
     report : bool
         Write a report beside each output.
+    report_config : ReportConfig
+        How those reports are drawn.
+    command : {"screen", "campaigns"}
+        What the entry runs (plan key ``command``).
+    campaign : CampaignConfig or None
+        The campaign options when ``command`` is ``"campaigns"``.
     where : str
         Place in the plan, for messages (e.g. ``"plan.toml line 12, [[input]] #2"``).
     base_dir : Path
@@ -54,6 +61,9 @@ class InputSpec:
     y: str | None = None
     name: str | None = None
     report: bool = False
+    report_config: ReportConfig = ReportConfig()
+    command: str = "screen"
+    campaign: object = None
     where: str = ""
     base_dir: Path = Path(".")
     words: str = "plan"
@@ -141,14 +151,15 @@ def _plan_value(key: str, value):
     return converted
 
 
-def _read_table(errors: _PlanErrors, table, entry: dict, allowed: tuple[str, ...]) -> tuple[dict, dict, bool]:
-    """Check every key of one plan table: (screen options, other settings, all fine).
+def _read_table(errors: _PlanErrors, table, entry: dict, allowed: tuple[str, ...]) -> tuple[dict, bool]:
+    """Check every key of one plan table: (values by the config holding them, all fine).
 
     The one check for ``[batch]``, ``[defaults]`` and each ``[[input]]``; the
-    keys each accepts and their kinds come from the option table.
+    keys each accepts and their kinds come from the option table. Values are
+    grouped by ``Option.config``: ``"screen"``, ``"report"``, ``"campaign"``, and None for the
+    settings the batch reads itself (paths, layers, out_dir...).
     """
-    options: dict = {}
-    settings: dict = {}
+    values: dict = {"screen": {}, "report": {}, "campaign": {}, None: {}}
     fine = True
     for key, value in entry.items():
         if key not in allowed:
@@ -163,8 +174,8 @@ def _read_table(errors: _PlanErrors, table, entry: dict, allowed: tuple[str, ...
             errors.add(table, key, exc.problem)
             fine = False
             continue
-        (options if OPTIONS[key].config == "screen" else settings)[key] = converted
-    return options, settings, fine
+        values[OPTIONS[key].config][key] = converted
+    return values, fine
 
 
 def parse_plan(
@@ -222,10 +233,9 @@ def _parse_plan(data, base: Path, source, text, out_dir, jobs) -> BatchPlan:
             errors.add("", name, f"must be a table: write [{name}] on its own line.")
             table = {}
         tables[name] = table
-    _, batch_settings, _ = _read_table(errors, "batch", tables["batch"], _TABLE_KEYS["batch"])
-    default_options, default_settings, defaults_fine = _read_table(errors, "defaults", tables["defaults"],
-                                                                   _TABLE_KEYS["defaults"])
-    default_settings = {"report": batch_settings.get("report", False), **default_settings}
+    batch_settings = _read_table(errors, "batch", tables["batch"], _TABLE_KEYS["batch"])[0][None]
+    default_values, defaults_fine = _read_table(errors, "defaults", tables["defaults"], _TABLE_KEYS["defaults"])
+    default_values[None] = {"report": batch_settings.get("report", False), **default_values[None]}
 
     entries = data.get("input", [])
     if isinstance(entries, dict):
@@ -237,8 +247,8 @@ def _parse_plan(data, base: Path, source, text, out_dir, jobs) -> BatchPlan:
         entries = []
     specs = []
     for number, entry in enumerate(entries):
-        spec = _input_spec(errors, ("input", number), entry, default_options, default_settings, tables["defaults"],
-                           defaults_fine, base, source)
+        spec = _input_spec(errors, ("input", number), entry, default_values, tables["defaults"], defaults_fine, base,
+                           source)
         if spec is not None:
             specs.append(spec)
 
@@ -258,14 +268,14 @@ def _parse_plan(data, base: Path, source, text, out_dir, jobs) -> BatchPlan:
     return BatchPlan(inputs=tuple(specs), out_dir=out_path, jobs=chosen_jobs, source=source)
 
 
-def _input_spec(errors, table, entry, default_options, default_settings, defaults, defaults_fine, base, source):
+def _input_spec(errors, table, entry, default_values, defaults, defaults_fine, base, source):
     """One ``[[input]]`` entry as an :class:`InputSpec`, or None (its problems recorded)."""
     if not isinstance(entry, dict):
         errors.add(table, None, f"expects a table with at least a path, got {entry!r}.")
         return None
-    own_options, own_settings, fine = _read_table(errors, table, entry, _TABLE_KEYS["input"])
-    options = {**default_options, **own_options}
-    settings = {**default_settings, **own_settings}
+    own, fine = _read_table(errors, table, entry, _TABLE_KEYS["input"])
+    values = {config: {**default_values[config], **own[config]} for config in own}
+    options, settings = values["screen"], values[None]
     if "path" not in entry:
         errors.add(table, None, 'has no path: add path = "file.gpkg" (a file, glob or directory).')
         fine = False
@@ -282,17 +292,26 @@ def _input_spec(errors, table, entry, default_options, default_settings, default
         fine = False
     if not fine or not defaults_fine:
         return None
+    command = settings.get("command") or "screen"
+    if command != "campaigns" and values["campaign"]:
+        for key in values["campaign"]:
+            errors.add(table, key, 'is a campaign key: set command = "campaigns" in this entry (or in [defaults]) '
+                       "to screen repeated campaigns, or remove it.")
+        return None
+    if command == "campaigns" and settings.get("by") is not None:
+        errors.add(table, "by", 'does not apply with command = "campaigns": the campaigns come from date or '
+                   "campaign; remove by.")
+        return None
     try:
         config = ScreenConfig(**options)
+        report_config = ReportConfig(**values["report"])
+        campaign = None
+        if command == "campaigns":
+            from ..campaigns import CampaignConfig
+
+            campaign = CampaignConfig(screen=config, **values["campaign"])
     except OptionError as exc:
-        names = exc.names or (exc.option,)
-        own = [name for name in names if name in entry]
-        if not own and any(name in defaults for name in names):
-            message = f"{errors.place('defaults', next(n for n in names if n in defaults))}: {exc.problem}"
-            if message not in errors.messages:  # one wrong default, reported once for all entries
-                errors.messages.append(message)
-            return None
-        errors.add(table, own[0] if own else None, exc.problem)
+        _joint_problem(errors, table, entry, defaults, exc)
         return None
     line = errors.locator.line_of(table, None) if errors.locator else None
     return InputSpec(
@@ -304,9 +323,25 @@ def _input_spec(errors, table, entry, default_options, default_settings, default
         y=settings.get("y"),
         name=settings.get("name"),
         report=bool(settings.get("report", False)),
+        report_config=report_config,
+        command=command,
+        campaign=campaign,
         where=f"{source}{f' line {line}' if line else ''}, [[input]] #{table[1] + 1}",
         base_dir=base,
     )
+
+
+def _joint_problem(errors: _PlanErrors, table, entry: dict, defaults: dict, exc: OptionError) -> None:
+    """Record a rule joining options (``review_z`` below ``suspect_z``) at the key to change: the entry's
+    own key, or once for all entries the ``[defaults]`` key it inherits."""
+    names = exc.names or (exc.option,)
+    own = [name for name in names if name in entry]
+    if not own and any(name in defaults for name in names):
+        message = f"{errors.place('defaults', next(n for n in names if n in defaults))}: {exc.problem}"
+        if message not in errors.messages:  # one wrong default, reported once for all entries
+            errors.messages.append(message)
+        return
+    errors.add(table, own[0] if own else None, exc.problem)
 
 
 def _check_paths(paths: Sequence[str], base: Path) -> str | None:
@@ -397,6 +432,7 @@ def plan_from_args(
     y: str | None = None,
     report: bool = False,
     jobs: int = 1,
+    report_config: ReportConfig | None = None,
 ) -> BatchPlan:
     """Build a plan from arguments (the direct form of ``pointsift batch``, or Python).
 
@@ -412,6 +448,8 @@ def plan_from_args(
         Or the screen options as :class:`ScreenConfig` keywords (at least ``value``).
     layers, by, x, y, report, jobs
         As in an ``[[input]]`` table of a plan.
+    report_config : ReportConfig, optional
+        How the reports are drawn (its defaults when omitted).
 
     Returns
     -------
@@ -441,5 +479,6 @@ def plan_from_args(
     if out_path.exists() and not out_path.is_dir():
         raise ConfigError(f"Output directory {str(out_path)!r} is a file. Choose a directory for {spell('out_dir')}.")
     spec = InputSpec(paths=paths, config=config, layers=tuple(layers) if layers else None, by=by, x=x, y=y,
-                     report=bool(report), where="command line", base_dir=base, words=current_caller())
+                     report=bool(report), report_config=report_config or ReportConfig(), where="command line",
+                     base_dir=base, words=current_caller())
     return BatchPlan(inputs=(spec,), out_dir=out_path, jobs=jobs, source="command line")

@@ -103,35 +103,20 @@ def _screen_unit(task: _Task) -> UnitOutcome:
     parent, so a unit counts as done exactly when its output is in place,
     whatever moment a Ctrl-C or SIGTERM comes at.
     """
-    from ..run import screen_file
-
     unit = task.unit
     started = time.perf_counter()
     staged_out, staged_report = _staged(task)
     try:
         with caller(unit.words):  # messages about this unit in the words of whoever set it up
-            run = screen_file(
-                unit.path,
-                staged_out,
-                unit.config,
-                layer=unit.layer,
-                x=unit.x,
-                y=unit.y,
-                overwrite=True,
-                frame_filter=_group_filter(unit.by, unit.group) if unit.by and task.read is None else None,
-                source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
-                report_path=staged_report,
-                read=task.read,
-            )
-        screened = run.result.frame
-        crs = run.result.prepared.input_crs or screened.crs
+            screened, crs, counts, seconds = (_run_campaigns if unit.command == "campaigns" else _run_screen)(
+                task, staged_out, staged_report)
         bounds = screened.total_bounds if len(screened) else None
         outcome = UnitOutcome(
             unit=unit,
             outcome=DONE,
-            counts={s: int(run.counts.get(s, 0)) for s in STATUSES},
+            counts={s: int(counts.get(s, 0)) for s in STATUSES},
             points=int(len(screened)),
-            screen_seconds=run.seconds,
+            screen_seconds=seconds,
             output=task.out_path.name,
             report=task.report_path.name if task.report_path else "",
             input_sha256=task.input_sha256,
@@ -145,6 +130,30 @@ def _screen_unit(task: _Task) -> UnitOutcome:
         outcome = _failed(task, with_origin(describe_failure(exc, unit.path), unit))
     outcome.seconds = time.perf_counter() - started
     return outcome
+
+
+def _run_screen(task: _Task, staged_out: Path, staged_report: Path | None):
+    """A screen unit into the staging folder: (screened rows, their CRS, counts, seconds)."""
+    from ..run import screen_file
+
+    unit = task.unit
+    run = screen_file(
+        unit.path, staged_out, unit.config, layer=unit.layer, x=unit.x, y=unit.y, overwrite=True,
+        frame_filter=_group_filter(unit.by, unit.group) if unit.by and task.read is None else None,
+        source_note=f"{unit.by} = {unit.group if unit.group is not None else '(missing)'}" if unit.by else None,
+        report_path=staged_report, report_config=unit.report_config, read=task.read,
+    )
+    return run.result.frame, run.result.prepared.input_crs or run.result.frame.crs, run.counts, run.seconds
+
+
+def _run_campaigns(task: _Task, staged_out: Path, staged_report: Path | None):
+    """A campaigns unit (plan ``command = "campaigns"``) into the staging folder, like :func:`_run_screen`."""
+    from ..campaign_run import campaigns_file
+
+    unit = task.unit
+    run = campaigns_file([unit.path], staged_out, unit.campaign, layer=unit.layer, x=unit.x, y=unit.y, overwrite=True,
+                         report_path=staged_report)
+    return run.result.readings, run.result.readings.crs, run.counts, run.seconds
 
 
 def _staged(task: _Task) -> tuple[Path, Path | None]:

@@ -10,7 +10,7 @@ import re
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..config import ScreenConfig, caller
+from ..config import ReportConfig, ScreenConfig, caller
 from ..errors import PointsiftError
 from ..io import list_layers, read_points
 from .index import INDEX_STEM
@@ -47,6 +47,12 @@ class Unit:
         Coordinate columns of tables without geometry.
     report : bool
         Write a report.
+    report_config : ReportConfig
+        How the report is drawn.
+    command : {"screen", "campaigns"}
+        What the unit runs.
+    campaign : CampaignConfig or None
+        The campaign options of a ``"campaigns"`` unit.
     problem : str or None
         Set when the unit failed already during expansion (unreadable file,
         missing layer or column); it is then recorded as failed.
@@ -66,6 +72,9 @@ class Unit:
     x: str | None = None
     y: str | None = None
     report: bool = False
+    report_config: ReportConfig = ReportConfig()
+    command: str = "screen"
+    campaign: object = None
     problem: str | None = None
     origin: str = ""
     words: str = "plan"
@@ -216,7 +225,8 @@ def _spec_drafts(spec: InputSpec, out_dir: Path, layers_read: dict) -> list[tupl
     for path in files:
         base_fields = dict(
             path=path, display=_display(path), config=spec.config, by=spec.by, x=spec.x, y=spec.y,
-            report=spec.report, origin=spec.where, words=spec.words,
+            report=spec.report, report_config=spec.report_config, command=spec.command, campaign=spec.campaign,
+            origin=spec.where, words=spec.words,
         )
         layers: list[str | None] = [None]
         layer_in_name = False
@@ -278,7 +288,8 @@ def _identity(fields: dict) -> str:
     config = fields["config"]
     return json.dumps(
         [str(Path(fields["path"]).resolve()), fields.get("layer"), fields.get("by"), fields.get("group"),
-         fields.get("x"), fields.get("y"), config.as_record()],
+         fields.get("x"), fields.get("y"), config.as_record(), fields.get("command", "screen"),
+         fields["campaign"].as_record() if fields.get("campaign") is not None else None],
         sort_keys=True, default=str,
     )
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import click
 
-from .options import config_from_options, given_options, pop_table_values, table_options
+from .options import config_from_options, given_options, pop_table_values, report_config_from_options, table_options
 
 __all__ = ["batch"]
 
@@ -28,8 +28,10 @@ def batch(ctx, inputs, force, batch_quiet, **options):
     settings = pop_table_values(options, None)
     plan_form = len(inputs) == 1 and inputs[0].lower().endswith(".toml")
     given = given_options(options, "screen")
+    given_report = given_options(options, "report")
     config = None if plan_form or "value" not in given else config_from_options(options)
-    result = run_command(inputs, config=config, given=tuple(given), out_dir=settings["out_dir"], jobs=settings["jobs"],
-                         force=force, quiet=quiet, layers=settings["layers"], by=settings["by"], x=settings["x"],
-                         y=settings["y"], report=settings["report"])
+    report_config = None if plan_form else report_config_from_options(options)
+    result = run_command(inputs, config=config, given=(*given, *given_report), out_dir=settings["out_dir"],
+                         jobs=settings["jobs"], force=force, quiet=quiet, layers=settings["layers"], by=settings["by"],
+                         x=settings["x"], y=settings["y"], report=settings["report"], report_config=report_config)
     ctx.exit(result.exit_code)

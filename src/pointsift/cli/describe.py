@@ -11,7 +11,8 @@ import click
 from ..errors import ConfigError
 from ..record import run_record
 from ..vocabulary import SUSPECT, direction_words
-from .options import config_from_options, describe_config_from_options, pop_table_values, table_options
+from .options import (config_from_options, describe_config_from_options, output_options, pop_table_values,
+                      report_config_from_options, table_options)
 from ..terminal import echo
 from .screen import check_outputs
 
@@ -91,12 +92,9 @@ def _echo_description(description, value_column: str, where: str) -> None:
 @click.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
 @table_options("describe")
-@click.option("--out", "out_path", default=None, type=click.Path(dir_okay=False), help="Also write the strips layer and summary tables to this GeoPackage (.gpkg).")
-@click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
+@output_options("Also write the strips layer and summary tables to this GeoPackage (.gpkg).", out_required=False)
 @click.option("--figures", "figures_dir", default=None, type=click.Path(file_okay=False), help="Folder to write histogram.png, strips.png and the variogram figures into.")
 @click.option("--with-screen", is_flag=True, help="Screen first (with the screen's default options), and also summarise without the suspect rows.")
-@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
-@click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
 @click.pass_context
 def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, report_path=None,
              summary_json_path=None, **options):
@@ -107,6 +105,7 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
     where = pop_table_values(options, None)
     layer, x_column, y_column = where["layer"], where["x"], where["y"]
     settings = describe_config_from_options(options)
+    report_config = report_config_from_options(options)
     config = config_from_options(options)
     if figures_dir is not None and not Path(figures_dir).is_dir():
         raise ConfigError(f"--figures folder {figures_dir!r} does not exist. Create it first or choose another folder.")
@@ -167,7 +166,8 @@ def describe(ctx, input_path, out_path, overwrite, figures_dir, with_screen, rep
         from ..report import build_report
 
         # a description with a screen of its own carries the screen's record
-        report = build_report(description=description, run_info=record if result is None else None)
+        report = build_report(description=description, run_info=record if result is None else None,
+                              config=report_config)
         for path in report.write(report_path, summary_json_path, protect=(os.fspath(input_path),)).values():
             if not quiet:
                 echo(f"Wrote {path}.")

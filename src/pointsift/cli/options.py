@@ -10,10 +10,11 @@ from __future__ import annotations
 
 import click
 
-from ..config import OPTIONS, DescribeConfig, Option, OptionError, ScreenConfig, caller, convert, options_for
+from ..config import (OPTIONS, DescribeConfig, Option, OptionError, ReportConfig, ScreenConfig, caller, convert,
+                      options_for)
 
-__all__ = ["table_options", "screen_options", "config_from_options", "describe_config_from_options", "OptionType",
-           "given_options", "pop_table_values"]
+__all__ = ["table_options", "screen_options", "config_from_options", "describe_config_from_options",
+           "report_config_from_options", "OptionType", "given_options", "pop_table_values", "output_options"]
 
 _METAVARS = {"int": "INTEGER", "float": "NUMBER", "length": "LENGTH", "numbers": "NUMBERS", "text": "TEXT",
              "texts": "TEXT"}
@@ -94,6 +95,30 @@ def describe_config_from_options(options: dict) -> DescribeConfig:
     """Build a :class:`~pointsift.config.DescribeConfig` from parsed CLI options."""
     with caller("cli"):
         return DescribeConfig(**given_options(options, "describe"))
+
+
+def report_config_from_options(options: dict) -> ReportConfig:
+    """Build a :class:`~pointsift.config.ReportConfig` from parsed CLI options."""
+    with caller("cli"):
+        return ReportConfig(**given_options(options, "report"))
+
+
+def output_options(out_help: str, *, out_required: bool, report_help: str = "Also write a self-contained HTML "
+                   "report (works offline).", summary_json: bool = True):
+    """The output options a one-input command declares itself: ``--out``, ``--overwrite``, ``--report``
+    and (unless ``summary_json=False``) ``--summary-json``, the same words in every command."""
+
+    def decorate(func):
+        if summary_json:
+            func = click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False),
+                                help="Also write the report's numbers as JSON.")(func)
+        func = click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False),
+                            help=report_help)(func)
+        func = click.option("--overwrite", is_flag=True, help="Replace an existing output file.")(func)
+        return click.option("--out", "out_path", required=out_required, default=None,
+                            type=click.Path(dir_okay=False), help=out_help)(func)
+
+    return decorate
 
 
 def pop_table_values(options: dict, config: str | None) -> dict:

@@ -6,7 +6,7 @@ import click
 
 from ..terminal import echo
 from ..vocabulary import FLAGGED, REVIEW, SUSPECT, UNSCREENED
-from .options import config_from_options, pop_table_values, table_options
+from .options import config_from_options, output_options, pop_table_values, report_config_from_options, table_options
 
 __all__ = ["screen", "check_report_paths", "check_outputs", "CAUTION_LINE"]
 
@@ -48,10 +48,7 @@ def _echo_result(result, top: int = 10) -> None:
 @click.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(dir_okay=False))
 @table_options("screen")
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False), help="Output GeoPackage (.gpkg).")
-@click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False), help="Also write a self-contained HTML report (works offline).")
-@click.option("--summary-json", "summary_json_path", default=None, type=click.Path(dir_okay=False), help="Also write the report's numbers as JSON.")
+@output_options("Output GeoPackage (.gpkg).", out_required=True)
 @click.pass_context
 def screen(ctx, input_path, out_path, overwrite, report_path=None, summary_json_path=None, **options):
     """Screen INPUT (GeoPackage, shapefile, CSV or GeoParquet) and write OUTPUT.gpkg
@@ -59,10 +56,11 @@ def screen(ctx, input_path, out_path, overwrite, report_path=None, summary_json_
     from ..run import screen_file
 
     where = pop_table_values(options, None)
+    report_config = report_config_from_options(options)
     config = config_from_options(options)
     check_outputs(input_path, [("--out", out_path), ("--report", report_path), ("--summary-json", summary_json_path)], overwrite)
     run = screen_file(input_path, out_path, config, layer=where["layer"], x=where["x"], y=where["y"], overwrite=overwrite,
-                      report_path=report_path, summary_json_path=summary_json_path)
+                      report_path=report_path, summary_json_path=summary_json_path, report_config=report_config)
     if not ctx.obj.get("quiet"):
         _echo_result(run.result)
         echo(f"Wrote {run.output_path} in {run.seconds:.1f} s.")

@@ -110,10 +110,8 @@ def build_report(
     *,
     description=None,
     run_info: dict | None = None,
-    max_points: int = 50_000,
-    max_labels: int = 80,
+    config=None,
     seed: int = 0,
-    title: str | None = None,
 ) -> Report:
     """Build the report of a screen, or of a described layer, from its findings.
 
@@ -131,15 +129,11 @@ def build_report(
         section too.
     run_info : dict, optional
         Run record; ``result.run_info`` by default.
-    max_points : int
-        Maps and clouds draw at most about this many points (density shading
-        or a stated seeded sample beyond; tables keep every row).
-    max_labels : int
-        Suspects labelled by id on the map (strongest first).
+    config : ReportConfig, optional
+        How the page is drawn (points drawn, suspects named by id, title);
+        the defaults of :class:`pointsift.config.ReportConfig` when omitted.
     seed : int
         Seed of the drawing samples.
-    title : str, optional
-        Page title (default from the value column and the input).
 
     Returns
     -------
@@ -150,8 +144,11 @@ def build_report(
     ConfigError
         When neither a result nor a description is given.
     """
+    from ..config import ReportConfig
     from ..errors import ConfigError
     from ..record import CAUTION, library_versions
+
+    config = ReportConfig() if config is None else config
 
     if result is None and description is None:
         raise ConfigError("build_report needs a screen result or a description; pass result= or description=.")
@@ -162,8 +159,9 @@ def build_report(
     else:
         findings = result.findings
         run_info = result.run_info if run_info is None else run_info
-    collected = collect(findings, run_info=dict(run_info or {}), max_points=max_points, max_labels=max_labels, seed=seed,
-                        title=title, versions=library_versions(), caution=CAUTION)
+    collected = collect(findings, run_info=dict(run_info or {}), max_points=config.report_points,
+                        max_labels=config.report_labels, seed=seed, title=config.report_title,
+                        versions=library_versions(), caution=CAUTION)
     return Report(html=render(collected.summary, collected.figures), summary=collected.summary, figures=collected.figures)
 
 

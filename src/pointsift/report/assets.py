@@ -80,6 +80,8 @@ td.id { font-weight:600; white-space:nowrap; }
 details.method { margin:14px 0; border:1px solid var(--line); border-radius:8px; padding:6px 12px; }
 details.method > summary { cursor:pointer; font-size:1.1rem; font-weight:650; padding:4px 0; }
 details > summary { cursor:pointer; color:var(--accent); }
+ol.key { list-style:none; padding:0; margin:6px 0; columns: 10em auto; column-gap:1.2em; font-size:0.9rem; }
+ol.key li { break-inside:avoid; overflow-wrap:anywhere; } ol.key b { display:inline-block; min-width:2.2em; }
 footer { margin-top:30px; padding-top:10px; border-top:1px solid var(--line); color:var(--muted); font-size:.85rem; }
 .muted { color:var(--muted); }
 code { overflow-wrap:anywhere; }

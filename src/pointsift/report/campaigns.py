@@ -1,18 +1,17 @@
-"""Report sections of ``pointsift campaigns``: the change map and the flagged wells' series.
+"""The report of ``pointsift campaigns``: the change map and the flagged wells' series, on the report page.
 
 Each section is a function of a :class:`~pointsift.campaigns.CampaignResult`
 returning HTML and its figures (inline PNG data URIs), so the page works
-offline and alone. :func:`campaign_report_html` puts them on one page with
-the counts, the run record and the caution; :func:`write_campaign_report`
-writes it atomically.
+offline and alone. :func:`campaign_report_html` puts them on the same page as
+the screen report (:func:`pointsift.report.html.page`: its header, counts
+cards, styles, phone-width rules and Content-Security-Policy), with the run
+record and the caution; every number on it comes from the result's run record
+and layers. :func:`write_campaign_report` writes it through
+:func:`pointsift.io.write_text` (atomic, never over an input).
 """
 
 from __future__ import annotations
 
-import base64
-import io
-import os
-import tempfile
 from html import escape
 from pathlib import Path
 
@@ -20,19 +19,20 @@ import numpy as np
 
 from ..errors import OutputError
 
-__all__ = ["change_map_section", "series_section", "campaign_report_html", "write_campaign_report",
+__all__ = ["change_map_section", "series_section", "campaign_report_html", "campaign_summary", "write_campaign_report",
            "plot_change_map", "plot_flagged_series"]
 
 _STATUS_COLOURS = {"suspect": "#b2182b", "review": "#e08214", "ok": "#4d4d4d", "unscreened": "#bdbdbd"}
 
 
 def _data_uri(fig) -> str:
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
     import matplotlib.pyplot as plt
 
+    from .figures import figure_data_uri
+
+    uri = figure_data_uri(fig)
     plt.close(fig)
-    return "data:image/png;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
+    return uri
 
 
 def _last_pair(result):
@@ -102,8 +102,8 @@ def change_map_section(result) -> tuple[str, dict]:
             f"{np.nanmedian(pair['change']):.3g}; {int(np.sum(np.abs(z) >= review_z))} changes out of line with the "
             "neighbours' changes (ringed and named). A regional rise or fall colours the whole map alike and rings nothing.</p>")
     html = (f"<section id='change-map'><h2>Change between the last two campaigns</h2>{text}"
-            f"<figure><img alt='change map' src='{uri}'><figcaption>Change of each well, coloured; "
-            "out-of-line changes ringed</figcaption></figure></section>")
+            f"<figure><img alt='Map of each well's change between the last two campaigns' src='{uri}'>"
+            "<figcaption>Change of each well, coloured; out-of-line changes ringed</figcaption></figure></section>")
     return html, {"change_map": uri}
 
 
@@ -163,53 +163,62 @@ def series_section(result, max_panels: int = 12) -> tuple[str, dict]:
             "neighbours' median series (grey: each neighbour's reading minus its own median, the median of those, "
             "put on this well's median level). A reading that leaves the grey line alone is what the history and "
             "change screens look for.</p>"
-            f"<figure><img alt='flagged series' src='{uri}'></figure></section>")
+            f"<figure><img alt=\"Series of the flagged wells over their neighbours' median\" src='{uri}'>"
+            "<figcaption>Each flagged well's readings (dark, suspect and review marked) over its neighbours' median "
+            "series (grey)</figcaption></figure></section>")
     return html, {"flagged_series": uri}
 
 
-_PAGE_CSS = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}"
-             "table{border-collapse:collapse}td,th{border:1px solid #ccc;padding:2px 8px;text-align:left}"
-             "img{max-width:100%}.caution{background:#fff6e0;padding:0.6em;border-left:4px solid #e08214}")
+def campaign_summary(result) -> dict:
+    """What the page shows about the run, from the result's run record only (plain values)."""
+    info = result.run_info
+    record = [(key, info.get(key)) for key in ("input_path", "rows", "wells", "campaigns", "campaigns_screened",
+                                               "campaign_rule", "representative_readings", "extra_readings",
+                                               "change_span_campaigns", "moved_wells", "work_crs", "timings_s")]
+    return {"title": "Repeated campaigns: readings screened", "command": info.get("command", "campaigns"),
+            "created": info.get("created"), "pointsift_version": (info.get("versions") or {}).get("pointsift", ""),
+            "counts": dict(result.counts), "caution": info["caution"], "record": record,
+            "versions": info.get("versions") or {}}
+
+
+def _run_section(summary: dict) -> str:
+    from .html import key_values
+
+    rows = [(k, escape(", ".join(map(str, v)) if isinstance(v, list) else str(v))) for k, v in summary["record"]]
+    versions = ", ".join(f"{escape(k)} {escape(str(v))}" for k, v in summary["versions"].items())
+    return (f'<section id="run"><h2>About the run</h2>{key_values(rows)}'
+            f"<details><summary>pointsift and library versions</summary><p>{versions}</p></details></section>")
 
 
 def campaign_report_html(result) -> str:
-    """The whole page: counts, the two sections, the run record and the caution."""
-    info = result.run_info
-    counts = "".join(f"<tr><th>{escape(k)}</th><td>{v}</td></tr>" for k, v in result.counts.items())
+    """The whole page: counts, the change map, the flagged wells' series, the run record and the caution."""
+    from .html import counts_section, header, page
+
+    summary = campaign_summary(result)
     change_html, _ = change_map_section(result)
     series_html, _ = series_section(result)
-    record = "".join(f"<tr><th>{escape(str(k))}</th><td>{escape(str(info.get(k)))}</td></tr>"
-                     for k in ("input_path", "rows", "wells", "campaigns", "campaigns_screened", "campaign_rule",
-                               "representative_readings", "extra_readings", "change_span_campaigns", "moved_wells",
-                               "work_crs", "timings_s", "versions"))
-    return (
-        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>pointsift campaigns</title>"
-        f"<style>{_PAGE_CSS}</style></head><body><h1>Repeated campaigns: readings screened</h1>"
-        f"<p class='caution'>{escape(info['caution'])}</p>"
-        f"<section id='counts'><h2>Readings per status</h2><table>{counts}</table></section>"
-        f"{change_html}{series_html}<section id='run'><h2>Run</h2><table>{record}</table></section></body></html>"
-    )
+    caution = escape(summary["caution"])
+    links = (("counts", "Counts"), ("change-map", "Change map"), ("series", "Flagged wells' series"),
+             ("run", "About the run"))
+    nav = ('<nav aria-label="Sections"><ul>' + "".join(f'<li><a href="#{k}">{escape(t)}</a></li>' for k, t in links)
+           + "</ul></nav>")
+    body = [header(summary), nav, "<main>",
+            f'<div class="caution" role="note" id="caution"><strong>Read this first.</strong> {caution}</div>',
+            counts_section(summary), change_html, series_html, _run_section(summary),
+            f"<footer><p>{caution}</p><p>The status, score and reasons of every reading are in the output "
+            "GeoPackage (layers readings, wells, changes).</p></footer>", "</main>"]
+    return page(summary["title"], body)
 
 
 def write_campaign_report(result, path, *, overwrite: bool = False, protect: tuple = ()) -> Path:
-    """Write the campaign report page atomically (never over an input)."""
+    """Write the campaign report page atomically (never over an input or another output)."""
+    from ..io import check_output_paths, write_text
+
     target = Path(path)
-    for other in protect:
-        if other and os.path.abspath(os.fspath(other)) == os.path.abspath(target):
-            raise OutputError(f"Refusing to write the report over {os.fspath(other)!r}. Choose another file name.")
+    check_output_paths([("The report", target)], [p for p in protect if p])
     if target.exists() and not overwrite:
         raise OutputError(f"{str(target)!r} exists. Pass --overwrite to replace it, or choose another name.")
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
         raise OutputError(f"Folder {str(folder)!r} for {str(target)!r} does not exist. Create it first or choose another path.")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            handle.write(campaign_report_html(result))
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return target
+    return write_text(target, campaign_report_html(result))

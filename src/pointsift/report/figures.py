@@ -276,17 +276,18 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
         density shading (hexagonal bins) instead of single markers; flagged
         points are always drawn one by one.
     max_labels : int
-        Most suspects labelled (strongest first); labels never overlap each
-        other where a free place exists (:func:`pointsift.report.labels.place_labels`).
+        Most suspects labelled by id (strongest first); labels never overlap
+        each other where a free place exists (:func:`pointsift.report.labels.place_labels`).
+        Every other suspect (up to :data:`MAP_NUMBERED`) carries its number,
+        listed in the record's ``key``.
 
     Returns
     -------
     (matplotlib.figure.Figure, dict)
         The figure and a record of what was drawn: ``drawn`` per status,
-        ``shaded`` (rows shown as density), ``labelled``, the shading.
+        ``shaded`` (rows shown as density), ``labelled`` (by id),
+        ``numbered`` and ``key`` (suspects shown by number), the shading.
     """
-    from .labels import place_labels
-
     xy = np.asarray(map_data.xy, dtype=float)
     n = xy.shape[0]
     values = np.asarray(map_data.values, dtype=float)
@@ -337,14 +338,35 @@ def plot_status_map(map_data, *, crs_label: str, value_label: str = "value", nor
                  fontsize=11)
     suspects = np.flatnonzero((status == "suspect") & located)
     if suspects.size and screened:
-        order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))]
-        review = np.flatnonzero((status == "review") & located)
-        placed = place_labels(ax, km[order], [str(ids[r]) for r in order],
-                              obstacles_xy=km[np.concatenate([suspects, review])], marker_px=7.0 * math.sqrt(shrink),
-                              limit=max_labels, reserved=_MAP_FURNITURE)
-        record.update(labelled=placed["labelled"], labels_with_leader=placed["with_leader"],
-                      labels_overlapping=placed["overlapping"], labels_left_out=placed["left_out"])
+        record.update(_label_suspects(ax, km, status, score, ids, suspects, shrink, max_labels))
     return fig, record
+
+
+#: Most suspects numbered on the map (each number in the key below it); beyond, placing labels
+#: costs more than the map gains (at 390 px the numbers would be one carpet anyway).
+MAP_NUMBERED = 1000
+
+
+def _label_suspects(ax, km, status, score, ids, suspects, shrink: float, max_labels: int) -> dict:
+    """Label suspects, strongest first: by id where it fits (up to ``max_labels``), else by their number.
+
+    Numbers index the key the report prints under the map (``key``: number,
+    row, id), so every suspect is identifiable up to :data:`MAP_NUMBERED`.
+    """
+    from .labels import place_labels
+
+    order = suspects[np.lexsort((suspects, -np.nan_to_num(score[suspects], nan=-np.inf)))]
+    numbered = order[:MAP_NUMBERED]
+    review = np.flatnonzero((status == "review") & np.isfinite(km).all(axis=1))
+    placed = place_labels(ax, km[numbered], [str(ids[r]) for r in numbered],
+                          obstacles_xy=km[np.concatenate([suspects, review])], marker_px=7.0 * math.sqrt(shrink),
+                          limit=max_labels, reserved=_MAP_FURNITURE,
+                          fallbacks=[str(i + 1) for i in range(numbered.size)])
+    key = [{"number": i + 1, "row": int(row), "id": str(ids[row])}
+           for i, (row, kind) in enumerate(zip(numbered, placed["kinds"])) if kind == "fallback"]
+    return {"labelled": placed["labelled"], "numbered": placed["by_fallback"], "labels_with_leader": placed["with_leader"],
+            "labels_overlapping": placed["overlapping"], "labels_left_out": placed["left_out"],
+            "not_numbered": int(order.size - numbered.size), "key": key}
 
 
 def plot_residual_map(

@@ -25,7 +25,7 @@ from .numbers import format_length, format_number, people_text, plural
 from .sections import (distribution_section, figure_html, lag_pairs_section, local_section, num_cell, strips_section,
                        text, unavailable, variogram_section)
 
-__all__ = ["render", "format_number"]
+__all__ = ["render", "page", "format_number", "header", "counts_section", "key_values"]
 
 STATUS_WORDS = STATUSES
 _NUM = ' class="num"'
@@ -154,10 +154,7 @@ def _map_section(summary: dict, figures: dict) -> str:
                      "crosses (Okabe-Ito colours).")
         n_suspect = (summary.get("counts") or {}).get("suspect", 0)
         if n_suspect:
-            labelled = m.get("labelled", 0)
-            parts.append("Every suspect is labelled with its id." if labelled >= n_suspect
-                         else f"{labelled:,} of the {n_suspect:,} suspects are labelled with their id: the strongest "
-                              "that have room for a label without covering another label or a flagged point.")
+            parts.append(_label_sentence(m, n_suspect))
     else:
         parts.append("The layer was described, not screened: points with a usable value are dots, points without one "
                      "crosses.")
@@ -175,7 +172,33 @@ def _map_section(summary: dict, figures: dict) -> str:
         parts.append(f"{plural(m['unlocated'], 'row')} without a usable value or location "
                      f"{'is' if m['unlocated'] == 1 else 'are'} not on the map.")
     parts.append(f"Coordinates in {escape(str(summary['crs']['work_name']))}; no background map (this file works offline).")
-    return '<section id="map"><h2>Map</h2>' + figure_html(figures, "status_map", " ".join(parts)) + "</section>"
+    return ('<section id="map"><h2>Map</h2>' + figure_html(figures, "status_map", " ".join(parts)) + _map_key(m)
+            + "</section>")
+
+
+def _label_sentence(m: dict, n_suspect: int) -> str:
+    """How the map names its suspects: by id where a label fits, else by a number in the key."""
+    labelled, numbered, beyond = m.get("labelled", 0), m.get("numbered", 0), m.get("not_numbered", 0)
+    if labelled >= n_suspect:
+        return "Every suspect is labelled with its id."
+    text = (f"{labelled:,} of the {n_suspect:,} suspects are labelled with their id (the strongest that have room "
+            "for it)")
+    if numbered:
+        text += f"; {'the other ' if not beyond else ''}{numbered:,} carry a number, listed with their ids under the map"
+    text += "."
+    if beyond:
+        text += f" The {beyond:,} weakest are not numbered: the table of points to check lists every one."
+    return text
+
+
+def _map_key(m: dict) -> str:
+    """The key of the numbers on the map (number, id), in a few columns that wrap on a phone."""
+    key = m.get("key") or []
+    if not key:
+        return ""
+    items = "".join(f'<li><b>{k["number"]}</b> {escape(k["id"])}</li>' for k in key)
+    return (f'<details class="map-key"{" open" if len(key) <= 40 else ""}><summary>Numbers on the map '
+            f'({len(key):,} suspects)</summary><ol class="key">{items}</ol></details>')
 
 
 def _param(value):
@@ -266,6 +289,12 @@ def render(summary: dict, figures: dict) -> str:
         "<code>--summary-json</code>; the statuses, scores and reasons of every row are in the output GeoPackage.</p></footer>",
         "</main>",
     ]
+    return page(summary["title"], body)
+
+
+def page(title: str, body: list) -> str:
+    """The page around its sections: styles, the small script and a Content-Security-Policy that forbids
+    any request (the screen report and the campaign report share it, and with it the phone-width rules)."""
     csp = ("default-src 'none'; img-src data:; style-src 'unsafe-inline'; script-src 'unsafe-inline'; "
            "font-src 'none'; connect-src 'none'; form-action 'none'; base-uri 'none'")
     return (
@@ -274,7 +303,13 @@ def render(summary: dict, figures: dict) -> str:
         f'<meta http-equiv="Content-Security-Policy" content="{csp}">'
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
         '<link rel="icon" href="data:,">'
-        f"<title>{escape(summary['title'])}</title><style>{CSS}</style></head><body>"
+        f"<title>{escape(title)}</title><style>{CSS}</style></head><body>"
         + "".join(body)
         + f"<script>{JS}</script></body></html>\n"
     )
+
+
+# the parts the campaign report shares (report/campaigns.py)
+header = _header
+counts_section = _counts_section
+key_values = _kv

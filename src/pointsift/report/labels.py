@@ -5,8 +5,12 @@ Labels are placed strongest first. Each tries positions around its point
 point by a thin leader line) and takes the first whose box overlaps no label
 already placed, no flagged marker and stays inside the map frame; when every
 position collides the label is left out (``skip_crowded``, the default; the
-record counts it) or, if asked, takes the position that overlaps least. This is the usual point-feature label placement by candidate
-positions (common practice in cartography).
+record counts it) or, if asked, takes the position that overlaps least. A
+point may also carry a short fallback text (its number in a key table): when
+the long label finds no free place, or beyond ``limit``, the fallback is tried,
+and it is placed even where it must overlap, so no such point is left out.
+This is the usual point-feature label placement by candidate positions
+(common practice in cartography).
 """
 
 from __future__ import annotations
@@ -30,7 +34,7 @@ def _overlap(box, boxes: np.ndarray) -> float:
 
 def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0, colour: str = "#7a2a00",
                  marker_px: float = 7.0, skip_crowded: bool = True, limit: int | None = None,
-                 reserved=()) -> dict:
+                 reserved=(), fallbacks=None) -> dict:
     """Annotate ``texts`` at ``points_xy`` (data units) without overlaps where possible.
 
     Parameters
@@ -43,17 +47,23 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
     obstacles_xy : ndarray, shape (m, 2)
         Other markers labels should not cover (data units).
     limit : int, optional
-        Stop after this many labels are placed.
+        Stop after this many labels are placed (points with a fallback then
+        get their fallback).
     reserved : sequence of (x0, y0, x1, y1)
         Parts of the map (axes fractions) kept free of labels: scale bar,
         north arrow, notes.
+    fallbacks : sequence of str, optional
+        A short text per point (e.g. its number in a key table), used when
+        its label has no free place or is beyond ``limit``; always placed.
 
     Returns
     -------
     dict
         ``labelled``, ``with_leader`` (placed away from the point, with a
         leader line), ``overlapping`` (placed although no free position was
-        found) and ``left_out`` (no free position; not labelled).
+        found), ``left_out`` (no free position; not labelled), and with
+        ``fallbacks``: ``by_fallback`` (points shown by their fallback) and
+        ``kinds`` (per point: ``"label"``, ``"fallback"`` or ``""``).
     """
     from matplotlib import patheffects
 
@@ -73,40 +83,61 @@ def place_labels(ax, points_xy, texts, *, obstacles_xy=(), fontsize: float = 8.0
         placed.append(np.array([[a, b, c, d]]))
     halo = [patheffects.withStroke(linewidth=2.5, foreground="white")]
     record = {"labelled": 0, "with_leader": 0, "overlapping": 0, "left_out": 0}
+    if fallbacks is not None:
+        record.update(by_fallback=0, kinds=[""] * len(texts))
     anchors = np.asarray(points_xy, dtype=float).reshape(-1, 2)
-    for (px, py), text, anchor in zip(pts, texts, anchors):
-        if limit is not None and record["labelled"] >= limit:
+    for number, ((px, py), text, anchor) in enumerate(zip(pts, texts, anchors)):
+        full = limit is not None and record["labelled"] >= limit
+        if full and fallbacks is None:
             break
-        w, h = char_w * len(text) + 4, line_h
-        boxes = np.concatenate(placed) if placed else np.empty((0, 4))
-        best, best_cost = None, np.inf
-        for ring in (1.0, 2.4, 4.0):
-            for dx, dy in _DIRECTIONS:
-                ox, oy = dx * (r + 3) * ring, dy * (r + 3) * ring
-                x0 = px + ox if dx > 0 else (px + ox - w if dx < 0 else px - w / 2)
-                y0 = py + oy if dy > 0 else py + oy - h
-                box = np.array([x0, y0, x0 + w, y0 + h])
-                inside = box[0] >= frame.x0 and box[2] <= frame.x1 and box[1] >= frame.y0 and box[3] <= frame.y1
-                cost = _overlap(box, boxes) + (0.0 if inside else w * h * 4)
-                if cost < best_cost:
-                    best, best_cost = (box, ring), cost
-                if cost == 0:
-                    break
-            if best_cost == 0:
+        options = [] if full else [text]
+        if fallbacks is not None:
+            options.append(fallbacks[number])
+        chosen = None
+        for attempt, shown in enumerate(options):
+            box, ring, cost = _best_position(px, py, char_w * len(shown) + 4, line_h, r, frame, placed)
+            last = attempt == len(options) - 1
+            if cost == 0 or (last and (fallbacks is not None or not skip_crowded)):
+                chosen = (shown, box, ring, cost, fallbacks is not None and (full or attempt == 1))
                 break
-        box, ring = best
-        if best_cost > 0 and skip_crowded:
+        if chosen is None:
             record["left_out"] += 1
             continue
+        shown, box, ring, cost, is_fallback = chosen
         centre = ((box[0] + box[2]) / 2, (box[1] + box[3]) / 2)
         offset = (centre[0] - px) / scale, (centre[1] - py) / scale
         arrow = {"arrowstyle": "-", "color": colour, "lw": 0.6, "shrinkA": 0, "shrinkB": 2} if ring > 1 else None
-        ann = ax.annotate(text, (float(anchor[0]), float(anchor[1])),
+        ann = ax.annotate(shown, (float(anchor[0]), float(anchor[1])),
                           xytext=offset, textcoords="offset points", ha="center", va="center", fontsize=fontsize,
                           color=colour, path_effects=halo, zorder=8, arrowprops=arrow, annotation_clip=False)
         ann.set_in_layout(False)
         placed.append(box[None, :])
-        record["labelled"] += 1
+        if is_fallback:
+            record["by_fallback"] += 1
+            record["kinds"][number] = "fallback"
+        else:
+            record["labelled"] += 1
+            if fallbacks is not None:
+                record["kinds"][number] = "label"
         record["with_leader"] += int(ring > 1)
-        record["overlapping"] += int(best_cost > 0)
+        record["overlapping"] += int(cost > 0)
     return record
+
+
+def _best_position(px: float, py: float, w: float, h: float, r: float, frame, placed: list):
+    """The candidate box around a point (pixels) that overlaps least: (box, ring, overlap cost)."""
+    boxes = np.concatenate(placed) if placed else np.empty((0, 4))
+    best, best_cost = None, np.inf
+    for ring in (1.0, 2.4, 4.0):
+        for dx, dy in _DIRECTIONS:
+            ox, oy = dx * (r + 3) * ring, dy * (r + 3) * ring
+            x0 = px + ox if dx > 0 else (px + ox - w if dx < 0 else px - w / 2)
+            y0 = py + oy if dy > 0 else py + oy - h
+            box = np.array([x0, y0, x0 + w, y0 + h])
+            inside = box[0] >= frame.x0 and box[2] <= frame.x1 and box[1] >= frame.y0 and box[3] <= frame.y1
+            cost = _overlap(box, boxes) + (0.0 if inside else w * h * 4)
+            if cost < best_cost:
+                best, best_cost = (box, ring), cost
+            if cost == 0:
+                return box, ring, 0.0
+    return best[0], best[1], best_cost
