@@ -45,3 +45,26 @@ def test_sections_and_offline_page(result, tmp_path):
     assert all(base64.b64decode(i)[:8] == b"\x89PNG\r\n\x1a\n" for i in images)
     with pytest.raises(OutputError, match="--overwrite"):
         write_campaign_report(result, path)
+
+
+def test_the_report_is_the_screen_report_of_the_latest_campaign_with_the_campaign_sections(result):
+    # issue 12: the report gains the change map and the flagged series; the rest is the screen report
+    from pointsift.report.campaigns import campaign_report_html
+
+    page = campaign_report_html(result)
+    order = [page.index(f'id="{anchor}"') for anchor in ("caution", "readings")]
+    order += [page.index(f"id='{anchor}'") for anchor in ("change-map", "series")]
+    order += [page.index(f'id="{anchor}"') for anchor in ("latest", "counts", "flagged", "map", "run")]
+    assert order == sorted(order)
+    assert f"The latest campaign, {result.latest_campaign}, screened on its own" in page
+    # the latest campaign's cards equal its campaign statuses in the readings layer (the same screen)
+    readings = result.readings
+    latest = readings[(readings.campaign_label == result.latest_campaign) & (readings.reading_role == "represents the well")]
+    counts = latest["campaign_status"].value_counts()
+    for word in ("suspect", "review", "ok"):
+        assert f'data-status="{word}"><div class="count">' in page
+        assert int(counts.get(word, 0)) == result.latest_screen.counts[word]
+    # readings per status over all campaigns, as the readings layer counts them
+    for word, n in result.counts.items():
+        assert int((readings.reading_status == word).sum()) == n
+        assert f'<th scope="row">{word}</th><td class="num">{n:,}</td>' in page

@@ -145,6 +145,12 @@ class CampaignResult:
         ``neighbour_level`` (neighbours' median series on the well's level),
         for reports.
     campaign_labels : tuple of str
+    latest_screen : ScreenResult or None
+        The single-campaign screen of the latest campaign large enough to be
+        screened (its statuses are that screen's, before the change and
+        history evidence), for the report; None when no campaign was screened.
+    latest_campaign : str
+        Its label ("" when none).
     """
 
     readings: gpd.GeoDataFrame
@@ -154,19 +160,24 @@ class CampaignResult:
     counts: dict
     series: dict = field(default_factory=dict)
     campaign_labels: tuple = ()
+    latest_screen: object = field(default=None, repr=False)
+    latest_campaign: str = ""
 
 
 _CAMPAIGN_SCREEN_COLUMNS = ("screen_status", "screen_score", "screen_reasons", "expected_value", "local_residual_z")
 
 
-def _screen_one(sub: gpd.GeoDataFrame, config: ScreenConfig):
-    """One campaign through the single-campaign pipeline (runs in a worker when ``jobs > 1``)."""
+def _screen_one(sub: gpd.GeoDataFrame, config: ScreenConfig, keep: bool = False):
+    """One campaign through the single-campaign pipeline (runs in a worker when ``jobs > 1``);
+    with ``keep`` (the latest campaign, screened in this process) the whole result as ``"result"`` too."""
     try:
         result = screen_frame(sub, config)
     except InputError as exc:
         return str(exc)
     out = {name: result.frame[name].to_numpy() for name in _CAMPAIGN_SCREEN_COLUMNS}
     out["coherent"] = np.asarray(result.local.coherent, dtype=bool)
+    if keep:
+        out["result"] = result
     return out
 
 
@@ -369,7 +380,8 @@ def _campaign_and_change_screens(frame, prepared, rep, info, matrix, span: int, 
     """Every campaign large enough through the single-campaign pipeline, every campaign pair's changes through
     the change screen, in one pool of workers.
 
-    Returns ``(campaign columns, change columns, changes-layer records, campaigns screened)``.
+    Returns ``(campaign columns, change columns, changes-layer records, campaigns screened,
+    (the latest campaign's ScreenResult or None, its label))``.
     """
     sc = config.screen
     n, xy, values = prepared.n, prepared.xy, prepared.values
@@ -393,7 +405,12 @@ def _campaign_and_change_screens(frame, prepared, rep, info, matrix, span: int, 
             tasks.append((c, rows))
     pairs, consecutive, spans = plan_pairs(matrix, span, sc.min_neighbours)
     pair_keys, pair_tasks = change_tasks(pairs, values, xy, config, cache)
-    results = _run_tasks([("campaign", (work_frame.iloc[rows], work)) for _, rows in tasks] + pair_tasks, config.jobs)
+    # the latest campaign is screened here, so its whole result (for the report) never crosses a process boundary
+    results = _run_tasks([("campaign", (work_frame.iloc[rows], work)) for _, rows in tasks[:-1]] + pair_tasks,
+                         config.jobs)
+    if tasks:
+        results.insert(len(tasks) - 1, _screen_one(work_frame.iloc[tasks[-1][1]], work, keep=True))
+    latest = results[len(tasks) - 1] if tasks and not isinstance(results[len(tasks) - 1], str) else None
     for (c, rows), got in zip(tasks, results[: len(tasks)]):
         if isinstance(got, str):
             camp["reasons"][rows] = f"campaign {info.labels[c]} not screened: {got}"
@@ -402,7 +419,8 @@ def _campaign_and_change_screens(frame, prepared, rep, info, matrix, span: int, 
                             ("expected", "expected_value"), ("z", "local_residual_z"), ("coherent", "coherent")):
             camp[key][rows] = got[column]
     change, records = change_columns(n, pairs, dict(zip(pair_keys, results[len(tasks):])), consecutive, spans)
-    return camp, change, records, len(tasks)
+    latest_screen = (latest["result"], info.labels[tasks[-1][0]]) if latest is not None else (None, "")
+    return camp, change, records, len(tasks), latest_screen
 
 
 def _regional_levels(values, well_codes, rep, info, n_wells: int, cache, min_neighbours: int):
@@ -476,8 +494,8 @@ def screen_campaigns(
     t = time.perf_counter()
     span = config.change_span or (window.per_year if config.campaign is None and window.per_year >= 2 else 2)
     cache = _GraphCache(xy, well_codes, sc, max_distance)
-    camp, change, records, screened = _campaign_and_change_screens(frame, prepared, rep, info, matrix, span, cache,
-                                                                   config)
+    camp, change, records, screened, latest = _campaign_and_change_screens(frame, prepared, rep, info, matrix, span,
+                                                                           cache, config)
     timings["campaign_and_change_screens_s"] = time.perf_counter() - t
 
     # 2. neighbours' shared movement (the regional part each history is relative to)
@@ -527,7 +545,7 @@ def screen_campaigns(
     )
     series = {"matrix": matrix, "neighbour_level": neighbour_level, "values": values, "campaign_year": info.decimal_year,
               "well_names": well_names}
-    return CampaignResult(out, wells, changes, run_info, counts, series, info.labels)
+    return CampaignResult(out, wells, changes, run_info, counts, series, info.labels, *latest)
 
 
 def campaigns(gdf: gpd.GeoDataFrame, value: str, id: str, *, date: str | None = None, campaign: str | None = None,

@@ -131,8 +131,5 @@ def make_progress(quiet: bool = False, stream=None) -> SilentProgress:
         return SilentProgress()
     stream = stream if stream is not None else sys.stderr
     if getattr(stream, "isatty", lambda: False)():
-        try:
-            return RichProgress(stream)
-        except ImportError:
-            pass
+        return RichProgress(stream)  # rich is a dependency: no fallback needed
     return LineProgress(stream)

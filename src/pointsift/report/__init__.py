@@ -112,6 +112,7 @@ def build_report(
     run_info: dict | None = None,
     config=None,
     seed: int = 0,
+    extra_sections=(),
 ) -> Report:
     """Build the report of a screen, or of a described layer, from its findings.
 
@@ -134,6 +135,9 @@ def build_report(
         the defaults of :class:`pointsift.config.ReportConfig` when omitted.
     seed : int
         Seed of the drawing samples.
+    extra_sections : sequence of (anchor, title, html)
+        Sections placed first on the page (the campaign report's,
+        :mod:`pointsift.report.campaigns`); their numbers are not in the summary.
 
     Returns
     -------
@@ -162,7 +166,8 @@ def build_report(
     collected = collect(findings, run_info=dict(run_info or {}), max_points=config.report_points,
                         max_labels=config.report_labels, seed=seed, title=config.report_title,
                         versions=library_versions(), caution=CAUTION)
-    return Report(html=render(collected.summary, collected.figures), summary=collected.summary, figures=collected.figures)
+    return Report(html=render(collected.summary, collected.figures, extra_sections), summary=collected.summary,
+                  figures=collected.figures)
 
 
 def load_summary_schema() -> dict:

@@ -181,30 +181,63 @@ def campaign_summary(result) -> dict:
             "versions": info.get("versions") or {}}
 
 
-def _run_section(summary: dict) -> str:
+def _run_section(summary: dict, anchor: str = "run", title: str = "About the run") -> str:
     from .html import key_values
 
     rows = [(k, escape(", ".join(map(str, v)) if isinstance(v, list) else str(v))) for k, v in summary["record"]]
     versions = ", ".join(f"{escape(k)} {escape(str(v))}" for k, v in summary["versions"].items())
-    return (f'<section id="run"><h2>About the run</h2>{key_values(rows)}'
+    return (f'<section id="{anchor}"><h2>{escape(title)}</h2>{key_values(rows)}'
             f"<details><summary>pointsift and library versions</summary><p>{versions}</p></details></section>")
 
 
+def _readings_section(summary: dict) -> str:
+    """Readings per status over all campaigns (the final verdict of each reading)."""
+    counts = summary["counts"]
+    total = sum(counts.values())
+    rows = "".join(f'<tr><th scope="row">{escape(word)}</th><td class="num">{n:,}</td>'
+                   f'<td class="num">{100.0 * n / total if total else 0:.1f} %</td></tr>' for word, n in counts.items())
+    return (f'<section id="readings"><h2>Readings per status, all campaigns</h2><table class="kv">{rows}</table>'
+            f'<p class="muted">{total:,} readings: the status of each combines its campaign screen, its change against '
+            "the neighbours' changes and its own history (the layer readings of the GeoPackage).</p></section>")
+
+
+def _latest_heading(label: str) -> str:
+    return (f'<section id="latest"><h2>The latest campaign, {escape(label)}, screened on its own</h2>'
+            f"<p>The sections below are the single-campaign screen of {escape(label)}, as "
+            "<code>pointsift screen</code> shows it: its statuses are that screen's, before the change and history "
+            "evidence (the readings layer holds the final ones), and row numbers count its representative "
+            "readings.</p></section>")
+
+
 def campaign_report_html(result) -> str:
-    """The whole page: counts, the change map, the flagged wells' series, the run record and the caution."""
+    """The whole page: readings per status, the change map, the flagged wells' series, then the latest
+    campaign's own screen report (counts, points to check, map, ...), the run record and the caution.
+
+    Without a screened campaign the page has the campaign sections only, on the same page frame.
+    """
+    from ..config import ReportConfig
     from .html import counts_section, header, page
 
     summary = campaign_summary(result)
     change_html, _ = change_map_section(result)
     series_html, _ = series_section(result)
+    extra = [("readings", "Readings", _readings_section(summary)), ("change-map", "Change map", change_html),
+             ("series", "Flagged wells' series", series_html)]
+    if result.latest_screen is not None:
+        extra.append(("campaign-run", "The campaigns",
+                      _run_section(summary, "campaign-run", "How the campaigns were formed and screened")))
+        from . import build_report
+
+        extra.append(("latest", "Latest campaign", _latest_heading(result.latest_campaign)))
+        title = f"Repeated campaigns: readings screened (latest campaign {result.latest_campaign})"
+        return build_report(result.latest_screen, run_info=result.latest_screen.run_info,
+                            config=ReportConfig(report_title=title), extra_sections=extra).html
     caution = escape(summary["caution"])
-    links = (("counts", "Counts"), ("change-map", "Change map"), ("series", "Flagged wells' series"),
-             ("run", "About the run"))
-    nav = ('<nav aria-label="Sections"><ul>' + "".join(f'<li><a href="#{k}">{escape(t)}</a></li>' for k, t in links)
-           + "</ul></nav>")
+    nav = ('<nav aria-label="Sections"><ul>' + "".join(f'<li><a href="#{k}">{escape(t)}</a></li>' for k, t, _ in extra)
+           + '<li><a href="#run">About the run</a></li></ul></nav>')
     body = [header(summary), nav, "<main>",
             f'<div class="caution" role="note" id="caution"><strong>Read this first.</strong> {caution}</div>',
-            counts_section(summary), change_html, series_html, _run_section(summary),
+            counts_section(summary), *(html for _, _, html in extra), _run_section(summary),
             f"<footer><p>{caution}</p><p>The status, score and reasons of every reading are in the output "
             "GeoPackage (layers readings, wells, changes).</p></footer>", "</main>"]
     return page(summary["title"], body)

@@ -51,8 +51,8 @@ def _header(summary: dict) -> str:
             f"<p>{made}. Works offline: everything it shows is inside this file.</p></div></header>")
 
 
-def _nav(summary: dict) -> str:
-    links = [("counts", "Counts"), ("flagged", "Points to check"), ("map", "Map"), ("distribution", "Distribution"),
+def _nav(summary: dict, extra=()) -> str:
+    links = [*((anchor, title) for anchor, title, _ in extra), ("counts", "Counts"), ("flagged", "Points to check"), ("map", "Map"), ("distribution", "Distribution"),
              ("local", "Local evidence"), ("variogram", "Variogram"), ("strips", "Strips"), ("lag_pairs", "Lag pairs"),
              ("run", "About the run")]
     items = "".join(f'<li><a href="#{k}">{escape(t)}</a></li>' for k, t in links)
@@ -256,7 +256,7 @@ def _run_section(summary: dict) -> str:
     return "".join(out)
 
 
-def render(summary: dict, figures: dict) -> str:
+def render(summary: dict, figures: dict, extra=()) -> str:
     """The report page as one HTML string.
 
     Parameters
@@ -265,6 +265,10 @@ def render(summary: dict, figures: dict) -> str:
         The summary document of :func:`pointsift.report.contents.collect`.
     figures : dict
         ``{name: {"uri": data URI, "alt": text}}``.
+    extra : sequence of (anchor, title, html)
+        Sections placed first, after the caution, and listed first in the
+        navigation (the campaign report's: readings per status, change map,
+        flagged wells' series).
 
     Returns
     -------
@@ -273,9 +277,10 @@ def render(summary: dict, figures: dict) -> str:
     caution = escape(summary["caution"])
     body = [
         _header(summary),
-        _nav(summary),
+        _nav(summary, extra),
         "<main>",
         f'<div class="caution" role="note" id="caution"><strong>Read this first.</strong> {caution}</div>',
+        *(html for _, _, html in extra),
         _counts_section(summary),
         _flagged_section(summary),
         _map_section(summary, figures),
