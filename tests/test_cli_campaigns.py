@@ -58,3 +58,20 @@ def test_campaigns_usage_and_data_errors(readings_csv, tmp_path, capsys):
     assert "both hold month 7" in capsys.readouterr().err
     assert main(["campaigns", *common, "--id", "well_id", "--date", "when"]) == 1
     assert "no date column 'when'" in capsys.readouterr().err
+
+
+def test_ids_from_the_data_are_printed_with_control_characters_escaped(readings_csv, tmp_path, capsys):
+    # what reaches the terminal goes through pointsift.terminal.printable, as for screen (issue 10)
+    import pandas as pd
+
+    path, frame = readings_csv
+    table = pd.read_csv(path)
+    slipped = table.loc[350, "well_id"]
+    table["well_id"] = table["well_id"].replace(slipped, slipped + "\x1b]0;owned\x07")
+    tricky = tmp_path / "tricky.csv"
+    table.to_csv(tricky, index=False)
+    code = main(["campaigns", str(tricky), "--value", "level_m", "--id", "well_id", "--date", "date", "--crs",
+                 "EPSG:32633", "--permutations", "99", "--out", str(tmp_path / "o.gpkg")])
+    printed = capsys.readouterr().out
+    assert code == 0 and "\x1b" not in printed and "\x07" not in printed
+    assert "Caution: flags are screening aids" in printed

@@ -4,8 +4,9 @@ from __future__ import annotations
 
 import click
 
+from ..terminal import echo
 from .options import config_from_options, given_options, output_options, pop_table_values, table_options
-from .screen import check_outputs
+from .screen import CAUTION_LINE, check_outputs
 
 __all__ = ["campaigns", "campaign_config_from_options"]
 
@@ -25,7 +26,7 @@ def _echo(run, top: int = 10) -> None:
     result = run.result
     counts = result.counts
     info = result.run_info
-    click.echo(
+    echo(
         f"Screened {info['rows']} readings of {info['wells']} wells in {info['campaigns']} campaigns "
         f"({info['campaigns_screened']} large enough for the campaign screen): {counts['suspect']} suspect, "
         f"{counts['review']} review, {counts['ok']} ok, {counts['unscreened']} unscreened "
@@ -33,15 +34,15 @@ def _echo(run, top: int = 10) -> None:
     )
     if info["moved_wells"]:
         shown = ", ".join(info["moved_wells"][:10])
-        click.echo(f"Wells whose location changed between campaigns ({len(info['moved_wells'])}): {shown}"
+        echo(f"Wells whose location changed between campaigns ({len(info['moved_wells'])}): {shown}"
                    + (" ..." if len(info["moved_wells"]) > 10 else ""))
     readings = result.readings
     flagged = readings[readings.reading_status == "suspect"].sort_values("reading_score", ascending=False).head(top)
     id_column = info["parameters"]["screen"]["id"]
     if len(flagged):
-        click.echo(f"Strongest suspects (of {counts['suspect']}):")
+        echo(f"Strongest suspects (of {counts['suspect']}):")
         for _, item in flagged.iterrows():
-            click.echo(f"  {item[id_column]} {item['campaign_label']}: {item['reading_reasons']}")
+            echo(f"  {item[id_column]} {item['campaign_label']}: {item['reading_reasons']}")
 
 
 @click.command()
@@ -63,6 +64,7 @@ def campaigns(ctx, inputs, out_path, overwrite, report_path=None, **options):
                          overwrite=overwrite, report_path=report_path)
     if not ctx.obj.get("quiet"):
         _echo(run)
-        click.echo(f"Wrote {run.output_path} in {run.seconds:.1f} s.")
+        echo(f"Wrote {run.output_path} in {run.seconds:.1f} s.")
         for path in run.extra_outputs.values():
-            click.echo(f"Wrote {path}.")
+            echo(f"Wrote {path}.")
+        echo(CAUTION_LINE)
