@@ -26,7 +26,9 @@ the level differs by at least 3 local sd from the nearest well there). About
 5 % of the wells per campaign. Recall at ``suspect`` by kind, and false alarms
 (uncoded, unplanted readings called ``suspect``), for pointsift without and
 with context, the 8-nearest-neighbour median rule and global Tukey fences
-(both from ``accuracy.py``).
+(both from ``accuracy.py``); and recall at ``suspect`` by the size of the
+planted change in local sd (the value kinds), which says how many mistakes
+are too small for any screen at this false-alarm rate.
 
 Run ``python benchmarks/real.py`` (seeds 0-2); ``--seeds 0 1 2 3 4`` for more.
 """
@@ -54,6 +56,8 @@ import pointsift  # noqa: E402
 KINDS = ("decimal", "ft_m", "transposed", "sign", "depth_as_level", "far_well", "duplicate", "misplaced")
 CONTEXT = dict(ground_elevation="WLM_GSE", well_depth="WELL_DEPTH", site="site", units="ft", flowing="flowing")
 WORK_CRS = "EPSG:32610"
+#: Bins of the planted change in local sd for the recall-by-size table.
+SIZE_BINS = (2.0, 3.0, 3.5, 4.0, 6.0, 8.0, np.inf)
 
 
 def _screen(layer, context: bool, **options):
@@ -62,7 +66,7 @@ def _screen(layer, context: bool, **options):
 
 
 def plant(layer: gpd.GeoDataFrame, seed: int, share: float = 0.05):
-    """Plant mistakes; returns the new layer and the kind per row ("" clean)."""
+    """Plant mistakes; returns the new layer, the kind per row ("" clean) and the change in local sd (NaN: none or not a value change)."""
     rng = np.random.default_rng([seed, int(layer["MSMT_DATE"].str[:4].iloc[0])])
     work = layer.to_crs(WORK_CRS)
     xy = np.column_stack([work.geometry.x, work.geometry.y]) / 1000.0  # km
@@ -86,6 +90,7 @@ def plant(layer: gpd.GeoDataFrame, seed: int, share: float = 0.05):
             break
     out = layer.copy()
     kind = np.full(len(layer), "", dtype=object)
+    size = np.full(len(layer), np.nan)
     extra_rows = []
     pool = iter(chosen)
     for k in KINDS:
@@ -130,13 +135,15 @@ def plant(layer: gpd.GeoDataFrame, seed: int, share: float = 0.05):
                 if np.isfinite(new) and abs(new - v) >= 2.0 * s:
                     out.loc[out.index[r], "WSE"] = new
                     kind[r] = k
+                    size[r] = abs(new - v) / s
                     done += 1
             if done >= per_kind:
                 break
     if extra_rows:
         out = pd.concat([out, *extra_rows], ignore_index=True)
         kind = np.concatenate([kind, np.full(len(extra_rows), "duplicate", dtype=object)])
-    return gpd.GeoDataFrame(out, geometry="geometry", crs=layer.crs), kind
+        size = np.concatenate([size, np.full(len(extra_rows), np.nan)])
+    return gpd.GeoDataFrame(out, geometry="geometry", crs=layer.crs), kind, size
 
 
 def _baseline(layer, method):
@@ -181,9 +188,12 @@ def part2(years, seeds, options):
     planted = dict.fromkeys(KINDS, 0)
     false = dict.fromkeys(methods, 0)
     clean_n = 0
+    by_size = {m: np.zeros((len(SIZE_BINS) - 1, 2), dtype=int) for m in methods}
     for seed in seeds:
         for year in years:
-            layer, kind = plant(fall_campaign(year), seed)
+            layer, kind, size = plant(fall_campaign(year), seed)
+            sized = np.isfinite(size)
+            which = np.digitize(size[sized], SIZE_BINS) - 1
             clean = (kind == "") & layer["uncoded"].to_numpy() & np.isfinite(layer["WSE"].to_numpy(float))
             clean_n += clean.sum()
             for k in KINDS:
@@ -198,6 +208,9 @@ def part2(years, seeds, options):
                 false[m] += int((status[clean] == "suspect").sum())
                 review_false[m] += int((status[clean] == "review").sum())
                 hits_sr[m] += int(np.isin(status[kind != ""], ("suspect", "review")).sum())
+                caught = status[sized] == "suspect"
+                for b in range(len(SIZE_BINS) - 1):
+                    by_size[m][b] += (int((which == b).sum()), int(caught[which == b].sum()))
     table = []
     for m in methods:
         row = {"method": m, **{k: hits[m][k] / max(planted[k], 1) for k in KINDS}}
@@ -206,7 +219,11 @@ def part2(years, seeds, options):
         row["false S"] = false[m] / max(clean_n, 1)
         row["false R"] = review_false[m] / max(clean_n, 1)
         table.append(row)
-    return pd.DataFrame(table), planted, int(clean_n)
+    sizes = pd.DataFrame(
+        {"change in local sd": [f"{a:g}-{b:g}" if np.isfinite(b) else f">= {a:g}" for a, b in zip(SIZE_BINS[:-1], SIZE_BINS[1:])],
+         "planted": by_size[methods[0]][:, 0],
+         **{m: by_size[m][:, 1] / np.maximum(by_size[m][:, 0], 1) for m in methods}})
+    return pd.DataFrame(table), planted, int(clean_n), sizes
 
 
 def main(argv=None) -> int:
@@ -230,9 +247,12 @@ def main(argv=None) -> int:
         print("Part 1: the fall campaigns as published (counts pooled over", len(args.years), "campaigns)")
         print(part1(args.years, options).to_string(index=False, float_format=lambda v: f"{v:.3f}"))
     if args.part in ("2", "both"):
-        table, planted, clean_n = part2(args.years, args.seeds, options)
+        table, planted, clean_n, sizes = part2(args.years, args.seeds, options)
         print(f"\nPart 2: planted mistakes, seeds {args.seeds}; planted per kind {planted}; clean uncoded readings {clean_n}")
         print(table.to_string(index=False, float_format=lambda v: f"{v:.3f}"))
+        print("\nRecall at suspect by the size of the value change (local sd of the levels; value kinds only, "
+              "not duplicate or misplaced)")
+        print(sizes.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
     print(f"\n{time.perf_counter() - started:.0f} s; pointsift {pointsift.__version__}")
     return 0
 

@@ -20,7 +20,7 @@ from .methods.plausibility import fmt, plausibility
 from .prepare import Prepared
 from .verdict import format_length
 
-__all__ = ["neighbour_graph", "context_evidence", "misplaced"]
+__all__ = ["neighbour_graph", "context_evidence", "misplaced", "level_residuals", "coincident_z"]
 
 def neighbour_graph(xy, usable, stations: Stations, context: Context, config: ScreenConfig, max_distance: float,
                     tie_rank=None):
@@ -88,18 +88,53 @@ def misplaced(prepared: Prepared, context: Context, graph, level_local: LocalRes
     return flag, text
 
 
+def level_residuals(prepared: Prepared, judging: Judging, graph, local: LocalResult, config: ScreenConfig, judged_ok):
+    """The local residuals of the levels themselves (``local`` when the values are what is judged).
+
+    With a ground elevation the screen judges depth to water; the level
+    judgement beside it serves the same-spot decision (:func:`coincident_z`)
+    and the misplaced-well check. No drift and no depth weighting: the
+    neighbours' levels as they are.
+    """
+    if judging.mode == "values":
+        return local
+    return local_residuals(prepared.xy, np.where(judged_ok, prepared.values, np.nan), graph,
+                           min_neighbours=config.min_neighbours)
+
+
+def coincident_z(judging: Judging, local: LocalResult, level_local: LocalResult) -> tuple[np.ndarray, np.ndarray]:
+    """Standardized residuals and scales for judging records at one spot: do they disagree, whom do the neighbours back.
+
+    Where depth to water is judged, each record is compared on the tighter
+    of the two judgements (the level or the depth-to-water surface of its
+    neighbours, whichever has the smaller residual scale), and the
+    disagreement tolerance is that scale. Records at one spot share their
+    neighbours, so the choice is the same for all of them and never favours
+    one record: it only makes the comparison as sharp as the neighbours
+    allow (on a valley floor the levels are smoother than the depths to
+    water; in the foothills the reverse). Returns ``(z, scale)``, the scale
+    in level units.
+    """
+    if judging.mode != "depth to water" or level_local is local:
+        return local.z, local.scale
+    with np.errstate(invalid="ignore"):
+        use_level = np.isfinite(level_local.z) & (level_local.scale < local.scale)
+    return np.where(use_level, level_local.z, local.z), np.where(use_level, level_local.scale, local.scale)
+
+
 def frame_column(frame, name):
     """A column of the input frame (it was checked to exist when the context was read)."""
     return frame[name]
 
 
 def context_evidence(prepared, context: Context, judging: Judging, stations: Stations, graph, local: LocalResult,
-                      config: ScreenConfig, judged_ok):
+                      config: ScreenConfig, judged_ok, level_local: LocalResult | None = None):
     """Evidence from the context columns, as (mask, text, level) with level "suspect", "review" or "note".
 
     Plausibility against land surface and well depth, vertical gradients
     between completions of one site, misplaced wells, and land-surface
     raster notes. Returns the evidence list and a ``run_info`` entry.
+    ``level_local``: :func:`level_residuals`, when already computed.
     """
     units = config.units or ""
     evidence = []
@@ -126,10 +161,8 @@ def context_evidence(prepared, context: Context, judging: Judging, stations: Sta
         "vertical_gradients": vertical,
     }
     if config.quantity == "level" and context.has_ground:
-        level_local = local
-        if judging.mode != "values":
-            level_local = local_residuals(prepared.xy, np.where(judged_ok, prepared.values, np.nan), graph,
-                                          min_neighbours=config.min_neighbours)
+        if level_local is None:
+            level_local = level_residuals(prepared, judging, graph, local, config, judged_ok)
         flag, text = misplaced(prepared, context, graph, level_local, config, judged_ok)
         # without an independent land surface this cannot be told from a steep slope: a look, not a verdict
         evidence.append((flag, text, "review"))

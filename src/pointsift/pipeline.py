@@ -25,7 +25,7 @@ from .methods.coincident import coincident_conflicts
 from .methods.local import LocalResult, local_residuals
 from .methods.lagpairs import lag_pair_reasons
 from .context import read_context
-from .hydro import context_evidence, neighbour_graph
+from .hydro import coincident_z, context_evidence, level_residuals, neighbour_graph
 from .judging import choose_judging
 from .methods.nested import find_stations, one_per_station, station_echo
 from .methods.repairs import KINDS_FOR, likely_slips, repair_chance
@@ -465,18 +465,25 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     strips, strip_layer = _strips(prepared, detrended if trended else None)
     timings["strips_s"] = time.perf_counter() - t
 
+    level_local = None
+    if config.quantity == "level" and context.has_ground or (stations.duplicate >= 0).any():
+        level_local = level_residuals(prepared, judging, graph, local, config, judged_ok)
+    same_spot_z, same_spot_scale = local.z, judged_local.scale
+    if level_local is not None and judging.mode == "depth to water":
+        same_spot_z, same_spot_scale = coincident_z(judging, local, level_local)
     coincident = coincident_conflicts(
         judging.judged if judging.mode == "log" else prepared.values,
         stations.duplicate,
-        local.z,
-        judged_local.scale,
+        same_spot_z,
+        same_spot_scale,
         value_tolerance=config.coincident_value_tolerance,
         decisive_z=2.0,
     )
     farthest = np.where(graph.mask, graph.distances, -np.inf).max(axis=1, initial=-np.inf)
     farthest = np.where(np.isfinite(farthest), farthest, np.nan)
 
-    evidence, context_info = context_evidence(prepared, context, judging, stations, graph, local, config, judged_ok)
+    evidence, context_info = context_evidence(prepared, context, judging, stations, graph, local, config, judged_ok,
+                                              level_local=level_local)
     with np.errstate(invalid="ignore"):
         evidence.append(((extrapolated != "") & (np.abs(local.z) >= config.review_z), extrapolated, "note"))
     candidates = (reasons == "") & np.isfinite(local.z) & (np.abs(local.z) >= config.review_z)
