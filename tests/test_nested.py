@@ -88,3 +88,59 @@ def test_vertical_gradient_check_flags_the_odd_pair():
     assert flagged.tolist() == [i in (18, 19) for i in range(2 * n_sites)]
     assert "W19" in text[18] and "vertical gradient" in text[19]
     assert record["pairs"] == n_sites
+
+
+def _loop_reference(coincident, usable, ids, site, depth, aquifer, tolerance=0.1):
+    """Completion labels by plain loops over stations (the rule of the module docstring), independent of the module."""
+    n = coincident.size
+    parent = list(range(n))
+
+    def find(i):
+        while parent[i] != i:
+            parent[i] = parent[parent[i]]
+            i = parent[i]
+        return i
+
+    for labels in (np.where(coincident >= 0, coincident.astype(object), ""), site):
+        first = {}
+        for r in range(n):
+            if usable[r] and labels[r] != "":
+                if labels[r] in first:
+                    parent[find(r)] = find(first[labels[r]])
+                else:
+                    first[labels[r]] = r
+    roots = [find(r) if usable[r] else None for r in range(n)]
+    members = {}
+    for r in range(n):
+        if roots[r] is not None:
+            members.setdefault(roots[r], []).append(r)
+    stations = sorted((m for m in members.values() if len(m) > 1), key=min)
+    completion, offset = [-1] * n, 0
+    for rows in stations:
+        known = sorted((r for r in rows if np.isfinite(depth[r])), key=lambda r: (depth[r], r))
+        cluster, current = {r: -1 for r in rows}, 0
+        for j, r in enumerate(known):
+            if j and not depth[r] - depth[known[j - 1]] <= tolerance * max(depth[r], 1e-12):
+                current += 1
+            cluster[r] = current
+        named = any(site[r] != "" for r in rows)
+        keys = {}
+        for r in rows:
+            key = (aquifer[r], ids[r] if named else "", cluster[r])
+            completion[r] = offset + keys.setdefault(key, len(keys))
+        offset += len(keys)
+    return completion
+
+
+def test_completions_equal_a_loop_over_stations():
+    rng = np.random.default_rng(5)
+    for trial in range(60):
+        n = int(rng.integers(2, 120))
+        coincident = np.where(rng.random(n) < 0.5, rng.integers(0, max(1, n // 4), n), -1)
+        usable = rng.random(n) < 0.9
+        site = np.where(rng.random(n) < 0.3, rng.choice(["a", "b", "c"], n), "").astype(object)
+        depth = np.where(rng.random(n) < 0.6, rng.choice([10.0, 10.5, 20.0, 50.0, 100.0, 101.0], n), np.nan)
+        aquifer = np.where(rng.random(n) < 0.5, rng.choice(["u", "l"], n), "").astype(object)
+        ids = rng.choice(["x", "y", "z"], n).astype(object)
+        got = find_stations(coincident, usable, ids=ids, site=site, depth=depth, aquifer=aquifer)
+        assert got.completion.tolist() == _loop_reference(coincident, usable, ids, site, depth, aquifer), trial

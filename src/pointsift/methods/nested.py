@@ -74,16 +74,59 @@ def _chain_pairs(labels: np.ndarray, usable: np.ndarray) -> np.ndarray:
     return np.column_stack([rows[:-1][same], rows[1:][same]])
 
 
-def _depth_clusters(depth: np.ndarray, tolerance: float) -> np.ndarray:
-    """Cluster sorted depths: consecutive depths within ``tolerance`` of the deeper one chain together."""
-    order = np.argsort(depth, kind="stable")
-    label = np.empty(depth.size, dtype=np.int64)
-    current = 0
-    for j, row in enumerate(order):
-        if j and not (depth[row] - depth[order[j - 1]] <= tolerance * max(depth[row], 1e-12)):
-            current += 1
-        label[row] = current
-    return label
+def _chain_spots(coincident: np.ndarray, usable: np.ndarray) -> np.ndarray:
+    """Edges joining consecutive usable members of each spot group (``coincident >= 0``)."""
+    rows = np.flatnonzero(usable & (coincident >= 0))
+    if rows.size < 2:
+        return np.empty((0, 2), dtype=np.int64)
+    rows = rows[np.argsort(coincident[rows], kind="stable")]
+    same = coincident[rows[1:]] == coincident[rows[:-1]]
+    return np.column_stack([rows[:-1][same], rows[1:][same]])
+
+
+def _station_depth_clusters(station: np.ndarray, depth: np.ndarray, tolerance: float) -> np.ndarray:
+    """Depth clusters within each station at once (NaN depth: -1).
+
+    Within a station, depths sorted (ties by row) chain together while each is
+    within ``tolerance`` of the deeper one of the two; clusters are numbered
+    0, 1, ... from the shallowest.
+    """
+    cluster = np.full(station.size, -1, dtype=np.int64)
+    known = np.flatnonzero(np.isfinite(depth))
+    if known.size == 0:
+        return cluster
+    order = known[np.lexsort((depth[known], station[known]))]  # by station, then depth, then row
+    st, d = station[order], depth[order]
+    first = np.r_[True, st[1:] != st[:-1]]
+    with np.errstate(invalid="ignore"):
+        step = np.r_[False, ~(d[1:] - d[:-1] <= tolerance * np.maximum(d[1:], 1e-12))] & ~first
+    count = np.cumsum(step)
+    start = np.maximum.accumulate(np.where(first, np.arange(order.size), 0))
+    cluster[order] = count - count[start]
+    return cluster
+
+
+def _completions(station, in_station, ids, site, depth, aquifer, depth_tolerance):
+    """Completion label of every row and the number of completions.
+
+    Inside a station (in ascending station order), records share a
+    completion when their aquifer unit, id (only when the station has a site
+    name) and depth cluster agree; labels are numbered by first row, station
+    after station.
+    """
+    n = station.size
+    completion = np.full(n, -1, dtype=np.int64)
+    rows = np.flatnonzero(in_station)
+    if rows.size == 0:
+        return completion, 0
+    rows = rows[np.argsort(station[rows], kind="stable")]  # station after station, rows ascending
+    st = station[rows]
+    cluster = _station_depth_clusters(st, depth[rows], depth_tolerance)
+    has_site = np.bincount(st, weights=(site[rows] != ""), minlength=int(st.max()) + 1) > 0
+    member_id = np.where(has_site[st], ids[rows], "")
+    codes = pd.MultiIndex.from_arrays([st, aquifer[rows], member_id, cluster]).factorize()[0]
+    completion[rows] = codes
+    return completion, int(codes.max()) + 1
 
 
 def find_stations(
@@ -131,29 +174,13 @@ def find_stations(
     aquifer = blank if aquifer is None else np.asarray(aquifer, dtype=object)
     depth = np.full(n, np.nan) if depth is None else np.asarray(depth, dtype=float)
     ids = blank if ids is None else np.asarray(ids, dtype=object)
-    spot = np.where(usable & (coincident >= 0), coincident.astype(object), "")
-    spot = np.array([f"spot {v}" if v != "" else "" for v in spot], dtype=object)
-    component = _components(n, [_chain_pairs(spot, usable), _chain_pairs(site, usable)])
+    component = _components(n, [_chain_spots(coincident, usable), _chain_pairs(site, usable)])
     size = np.bincount(component[usable], minlength=n) if usable.any() else np.zeros(n, dtype=np.int64)
     in_station = usable & (size[component] > 1)
     station = np.full(n, -1, dtype=np.int64)
     _, station[in_station] = np.unique(component[in_station], return_inverse=True)
 
-    completion = np.full(n, -1, dtype=np.int64)
-    keys = []
-    for s in np.unique(station[in_station]):
-        rows = np.flatnonzero(station == s)
-        known = np.isfinite(depth[rows])
-        cluster = np.full(rows.size, -1, dtype=np.int64)
-        if known.any():
-            cluster[known] = _depth_clusters(depth[rows][known], depth_tolerance)
-        member_id = ids[rows] if (site[rows] != "").any() else np.full(rows.size, "", dtype=object)
-        key = pd.MultiIndex.from_arrays([aquifer[rows], member_id, cluster]).factorize()[0]
-        keys.append((rows, key))
-    offset = 0
-    for rows, key in keys:
-        completion[rows] = key + offset
-        offset += int(key.max()) + 1
+    completion, offset = _completions(station, in_station, ids, site, depth, aquifer, depth_tolerance)
     per_station = pd.Series(completion[in_station]).groupby(station[in_station]).nunique()
     nested = np.zeros(n, dtype=bool)
     nested[in_station] = per_station.reindex(station[in_station]).to_numpy() > 1
