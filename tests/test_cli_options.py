@@ -83,7 +83,8 @@ def test_plan_tables_accept_exactly_the_table_keys(tmp_path):
                  "quantity": '"level"', "land_surface_use": '"depth"', "transform": '"none"',
                  "report_points": "2000", "report_title": '"Network"', "command": '"campaigns"',
                  "campaign_window": '"year"', "change_permutations": "199", "date": '"measured"',
-                 "campaign": '"round"'}.get(
+                 "campaign": '"round"',
+                 "engine": '"dask"', "scheduler": '"tcp://127.0.0.1:8786"', "partition_size": "1000"}.get(
             name, samples.get(option.kind))
         lines.append(f"{name} = {value}")
     defaults = "\n".join(line for line in lines if not line.startswith(("x =", "y =", "by =")))

@@ -54,6 +54,7 @@ __all__ = [
     "QUANTITIES",
     "TRANSFORMS",
     "LAND_SURFACE_USES",
+    "ENGINES",
 ]
 
 DEFAULT_SENTINELS: tuple[float, ...] = (-9999.0, -999.0, -99999.0)
@@ -65,6 +66,8 @@ QUANTITIES = ("level", "depth", "concentration", "other")
 TRANSFORMS = ("none", "log", "auto")
 #: How the land surface enters the prediction of a water level.
 LAND_SURFACE_USES = ("auto", "depth", "drift", "none")
+#: Where a screen runs (``ScreenConfig.engine``).
+ENGINES = ("local", "dask")
 
 def _check_crs_text(text, name: str) -> None:
     """A CRS option pyproj cannot read is a usage problem, found before any work."""
@@ -227,6 +230,14 @@ OPTIONS: dict[str, Option] = {
                minimum=5, config="campaign", commands=_CAMPAIGNS, plan=_ENTRY),
         Option("change_permutations", "int", "Permutations for local Moran's I of the changes", default=199,
                minimum=99, maximum=100_000, config="campaign", commands=_CAMPAIGNS, plan=_ENTRY),
+        # --- where the work runs (pointsift.engine; docs/scale.md)
+        Option("engine", "choice", "Where the screen runs: this process, or a Dask cluster (pip install 'pointsift[dask]')",
+               choices=ENGINES, default="local", commands=_SCREEN, plan=("defaults",)),
+        Option("scheduler", "text", "Address of a running Dask scheduler, e.g. tcp://10.0.0.5:8786",
+               default_text="a local cluster started and closed by the run", commands=_SCREEN, plan=("defaults",),
+               metavar="ADDRESS"),
+        Option("partition_size", "int", "Points per spatial partition of the Dask engine", default=100_000,
+               minimum=100, commands=_SCREEN, plan=("defaults",)),
         # --- which part of the input (read by the commands)
         Option("layer", "text", "Layer to read from a multi-layer file (GeoPackage); campaigns: '*' reads every "
                "layer as one campaign", config=None, commands=("screen", "describe", "campaigns"), plan=(),
@@ -398,6 +409,14 @@ class ScreenConfig:
         Scale the screen judges on; reasons stay in the original units.
     depth_weighting : bool
         Neighbours of other depths weigh less in the local fit.
+    engine : {"local", "dask"}
+        Where the screen runs: this process, or a Dask cluster (same
+        results; :mod:`pointsift.engine`, docs/scale.md).
+    scheduler : str or None
+        Address of a running Dask scheduler; None starts a local cluster for
+        the run and closes it after.
+    partition_size : int
+        Points per spatial (Hilbert-order) partition of the Dask engine.
 
     Examples
     --------
@@ -441,6 +460,9 @@ class ScreenConfig:
     depth_tolerance: float = 0.1
     transform: str = "none"
     depth_weighting: bool = True
+    engine: str = "local"
+    scheduler: str | None = None
+    partition_size: int = 100_000
     extra: dict = field(default_factory=dict, compare=False, hash=False, repr=False)
 
     def __post_init__(self) -> None:
@@ -466,6 +488,9 @@ class ScreenConfig:
         if graph == "knn" and self.min_neighbours > self.k:
             raise _joint_error(("min_neighbours", "k"), f"{spell('min_neighbours')} ({self.min_neighbours}) "
                                f"cannot exceed {spell('k')} ({self.k}).")
+        if self.scheduler is not None and self.engine != "dask":
+            raise _joint_error(("scheduler", "engine"), f"{spell('scheduler')} runs the screen on that Dask cluster: "
+                               f"pass {spell('engine', 'dask')} with it, or leave it out.")
         if not self.review_z < self.suspect_z:
             raise _joint_error(("review_z", "suspect_z"), f"{spell('review_z')} ({self.review_z}) must be positive "
                                f"and below {spell('suspect_z')} ({self.suspect_z}).")

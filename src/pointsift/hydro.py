@@ -23,13 +23,14 @@ from .verdict import format_length
 __all__ = ["neighbour_graph", "context_evidence", "misplaced", "level_residuals", "coincident_z"]
 
 def neighbour_graph(xy, usable, stations: Stations, context: Context, config: ScreenConfig, max_distance: float,
-                    tie_rank=None):
+                    tie_rank=None, builder=build_graph):
     """The neighbour graph: within each aquifer unit, one neighbour per nested station.
 
     Wells with a unit take neighbours of that unit only; wells with no unit
     take the nearest wells of any unit and are neighbours of none of the
     wells that have one. Records of one station are never each other's
-    neighbours.
+    neighbours. ``builder`` makes each graph (:func:`pointsift.graph.build_graph`
+    or an engine's partitioned builder with the same arguments and result).
     """
     nested = bool(stations.nested.any())
     k = config.k
@@ -38,8 +39,8 @@ def neighbour_graph(xy, usable, stations: Stations, context: Context, config: Sc
         k = min(100, config.k + 2 * widest)
 
     def build(can_be_neighbour):
-        return build_graph(xy, kind=config.graph, k=k, within=config.within, max_distance=max_distance,
-                           coincident=stations.station, usable=can_be_neighbour, tie_rank=tie_rank)
+        return builder(xy, kind=config.graph, k=k, within=config.within, max_distance=max_distance,
+                       coincident=stations.station, usable=can_be_neighbour, tie_rank=tie_rank)
 
     units = context.aquifer
     if not (usable & (units != "")).any():

@@ -29,8 +29,10 @@ from .hydro import coincident_z, context_evidence, level_residuals, neighbour_gr
 from .judging import choose_judging
 from .methods.nested import find_stations, one_per_station, station_echo
 from .methods.repairs import KINDS_FOR, likely_slips, repair_chance
-from .methods.strips import flagged_strip_evidence, strip_summary
+from .methods.strips import flagged_strip_evidence
 from .prepare import Prepared, prepare
+from .engine import open_engine
+from .structure import CLIP_SD, SpatialStructure, automatic_max_distance, clipped, spatial_structure, spatial_tables, strips_layer
 from .record import CAUTION, library_versions, run_record
 from .verdict import decide, format_length
 from .vocabulary import QUADRANT_WORDS, STATUSES, UNSCREENED
@@ -114,129 +116,6 @@ class ScreenResult:
         return screen_findings(self, self.artefacts["structure"], self.artefacts["strips"])
 
 
-def automatic_max_distance(xy: np.ndarray) -> float:
-    """Farthest a neighbour may be when the user gives no ``max_distance``.
-
-    The upper far fence (Tukey 1977: third quartile plus three interquartile
-    ranges) of the log distance from each point to its nearest other point:
-    a well whose nearest other well is farther than that is isolated.
-    """
-    from scipy.spatial import cKDTree
-
-    distinct = np.unique(xy, axis=0)
-    if distinct.shape[0] < 3:
-        return float("inf")
-    d, _ = cKDTree(distinct).query(distinct, k=2)
-    logs = np.log(d[:, 1][d[:, 1] > 0])
-    q1, q3 = np.percentile(logs, [25, 75])
-    return float(np.exp(q3 + 3.0 * max(q3 - q1, np.log(2.0))))
-
-
-_TREND_SAMPLE = 20_000
-
-
-@dataclass(frozen=True)
-class SpatialStructure:
-    """Regional trend, lag-pair screen and variogram of one layer, by one rule for ``screen`` and ``describe``.
-
-    Attributes
-    ----------
-    trend : TrendSurface, PolishSurface or None
-        The fitted regional trend.
-    detrended : ndarray
-        Values minus the trend (the values when no trend), NaN where unusable.
-    trend_info : dict
-        Method and shares of variance explained (run record).
-    lag_screen : LagPairScreen
-    variogram : VariogramAnalysis or None
-        None when it cannot be computed (the record says why).
-    basis : str
-        What the lag pairs and the variogram were computed on.
-    record : dict
-        ``lag_pairs`` and ``variogram`` entries of the run record.
-    """
-
-    trend: object
-    detrended: np.ndarray
-    trend_info: dict
-    lag_screen: object
-    variogram: object
-    basis: str
-    record: dict
-
-
-def spatial_structure(prepared: Prepared, *, detrend: str = "auto", lag_count=None, lag_width=None,
-                      seed: int = ScreenConfig.seed) -> SpatialStructure:
-    """Regional trend, then lag pairs and variograms of the trend residuals.
-
-    ``screen_frame`` and :func:`pointsift.explore.describe` both call this, so
-    the same input and options give the same trend, lag pairs and variogram
-    model in both. The trend is fitted on at most 20,000 points (seeded
-    sample, see :func:`pointsift.methods.trend.regional_trend`).
-    """
-    from .methods.lagpairs import screen_lag_pairs
-    from .methods.trend import regional_trend
-    from .methods.variogram import analyse_variogram, expected_difference_sd, neighbourhood_from_fit
-
-    values = np.where(prepared.usable, prepared.values, np.nan)
-    fit, detrended, trend_info = regional_trend(prepared.xy[:, 0], prepared.xy[:, 1], values, detrend,
-                                                sample=_TREND_SAMPLE)
-    values = np.where(prepared.usable, detrended, np.nan)
-    basis = "values" if trend_info.get("method", "none") == "none" else f"residuals from the trend ({trend_info['method']})"
-    variogram = None
-    variogram_info = {"values": basis}
-    try:
-        variogram = analyse_variogram(prepared.xy, values, lag_count=lag_count, lag_width=lag_width, seed=seed)
-        variogram_info.update(variogram.run_info())
-    except InputError as exc:
-        variogram_info["note"] = f"no variogram: {exc}"
-    # The expected difference between two records h apart: from the fitted
-    # model when it is trustworthy (sqrt(2 gamma(h))), so pairs far apart are
-    # allowed to differ more; otherwise the robust default (each lag class's
-    # own spread) and the run record says why.
-    hint = neighbourhood_from_fit(variogram.fit if variogram is not None else None)
-    if hint.distance is not None:
-        model = hint.fit
-        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=seed,
-                                      distance_scale=lambda h: expected_difference_sd(model, h))
-        scale_note = "pair differences divided by the variogram model's sqrt(2 gamma(h))"
-    else:
-        lag_screen = screen_lag_pairs(prepared.xy, values, ids=prepared.ids, seed=seed)
-        scale_note = f"each lag class's own robust spread ({hint.reason})"
-    record = {
-        "lag_pairs": {"values": basis, "difference_scale": scale_note, **lag_screen.record},
-        "variogram": variogram_info,
-    }
-    return SpatialStructure(fit, values, trend_info, lag_screen, variogram, basis, record)
-
-
-def _strips(prepared: Prepared, detrended: np.ndarray | None = None):
-    """West-east and south-north strips with the calibrated mean-median statistic, and their polygon layer.
-
-    Judged on the residuals from the regional trend when one was fitted
-    (``detrended``), so the flank of a valley is not a skewed strip.
-    """
-    values = prepared.values if detrended is None else detrended
-    result = strip_summary(prepared.xy[:, 0], prepared.xy[:, 1], np.where(prepared.usable, values, np.nan))
-    layer = gpd.GeoDataFrame(result.table, geometry="geometry", crs=prepared.work_crs)
-    return result, layer
-
-
-_CLIP_SD = 5.0
-
-
-def _clipped(values: np.ndarray) -> np.ndarray:
-    """Values winsorized at the median +- ``_CLIP_SD`` robust sd (Huber-type; NaN kept)."""
-    finite = np.isfinite(values)
-    if finite.sum() < 3:
-        return values
-    centre = np.median(values[finite])
-    spread = 1.482602218505602 * np.median(np.abs(values[finite] - centre))
-    if not spread > 0:
-        return values
-    return np.where(finite, np.clip(values, centre - _CLIP_SD * spread, centre + _CLIP_SD * spread), values)
-
-
 def _raw_ids(frame, config: ScreenConfig, prepared: Prepared):
     """The id column as text ("row N" counted from 1 where blank or without an id column)."""
     if config.id is None:
@@ -246,49 +125,6 @@ def _raw_ids(frame, config: ScreenConfig, prepared: Prepared):
     blank = ids == ""
     ids[blank] = [f"row {r + 1}" for r in np.flatnonzero(blank)]
     return ids
-
-
-def _spatial_tables(lag_screen, variogram, prepared: Prepared, *, status=None, coherent=None, raw_ids=None,
-                    detrended: bool = False) -> dict:
-    """The ``lag_pairs`` line layer (work CRS) and the ``variogram`` table.
-
-    The layer keeps only pairs that carry evidence about an error: pairs
-    with a likely culprit, or with an end called ``suspect`` whose deviation
-    the neighbours do not share (pairs explained by a coherent feature, such
-    as the wells around a pumping cone, are left out). Values are in the
-    value's units (``tail_value``, ``head_value``, ``value_difference``);
-    when a trend was removed, the screened numbers are named
-    ``tail_residual``, ``head_residual``, ``residual_difference``. Ids are the
-    id column's own text, so ``culprit_id`` joins to it (row numbers, "row
-    N" counted from 1, without an id column).
-    """
-    from .methods.lagpairs import lag_pairs_layer
-
-    layer = lag_pairs_layer(lag_screen, prepared.xy, crs=prepared.work_crs)
-    if status is not None and len(layer):
-        tail, head = layer["tail_row"].to_numpy(), layer["head_row"].to_numpy()
-        lone = (status == "suspect") & ~coherent
-        has_culprit = layer["culprit_id"].to_numpy(dtype=object) != ""
-        evidence = np.where(has_culprit, "likely culprit", np.where(lone[tail] | lone[head], "suspect end", ""))
-        layer = layer.assign(evidence=evidence)[evidence != ""].reset_index(drop=True)
-        tail, head = layer["tail_row"].to_numpy(), layer["head_row"].to_numpy()
-        ids = raw_ids if raw_ids is not None else prepared.ids
-        culprit_row = np.where(layer["culprit_id"].to_numpy(dtype=object) == "", -1,
-                               np.where(layer["culprit_id"].to_numpy(dtype=object) == prepared.ids[tail], tail, head))
-        names = {"tail_value": "tail_residual", "head_value": "head_residual", "difference": "residual_difference"}
-        layer = layer.rename(columns=names if detrended else {"difference": "value_difference"}).drop(columns=["flagged"])
-        if detrended:
-            layer.insert(layer.columns.get_loc("tail_residual"), "tail_value", prepared.values[tail])
-            layer.insert(layer.columns.get_loc("tail_residual"), "head_value", prepared.values[head])
-            layer.insert(layer.columns.get_loc("tail_residual"), "value_difference", prepared.values[head] - prepared.values[tail])
-        layer["tail_id"] = ids[tail].astype(object)
-        layer["head_id"] = ids[head].astype(object)
-        layer["culprit_id"] = np.array([ids[r] if r >= 0 else "" for r in culprit_row], dtype=object)
-    tables = {"lag_pairs": layer}
-    if variogram is not None:
-        tables["variogram"] = variogram.table
-    return tables
-
 
 
 def _tighter_of_level_and_depth(prepared, judging, depth_local, depth_back, graph, context, config):
@@ -363,7 +199,20 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         the input, or no usable point at all.
     CRSError
         Missing or contradictory CRS.
+    ConfigError
+        ``engine="dask"`` without the Dask packages, or no scheduler at ``scheduler``.
+
+    Notes
+    -----
+    ``config.engine`` chooses where the per-point stages run
+    (:mod:`pointsift.engine`); the result is the same with either.
     """
+    with open_engine(config) as engine:
+        return _screen(frame, config, source, engine)
+
+
+def _screen(frame, config: ScreenConfig, source, engine) -> ScreenResult:
+    """:func:`screen_frame` on an open engine."""
     started = time.perf_counter()
     timings: dict[str, float] = {}
     # GeoPackage (SQLite) column names are case-insensitive: SCREEN_STATUS collides too
@@ -402,7 +251,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     usable_xy = prepared.xy[judged_ok]
     max_distance = config.max_distance if config.max_distance is not None else automatic_max_distance(usable_xy)
     graph, _ = neighbour_graph(prepared.xy, judged_ok, stations, context, config, max_distance,
-                               tie_rank=canonical_rank(prepared.xy, prepared.values))
+                               tie_rank=canonical_rank(prepared.xy, prepared.values), builder=engine.build_graph)
     if stations.nested.any():
         graph = one_per_station(graph, stations, context.well_depth, judging.judged,
                                 config.k if config.graph == "knn" else None)
@@ -453,8 +302,8 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
     t = time.perf_counter()
     judged = judged_ok & ~too_few
     autocorr = local_autocorrelation(
-        _clipped(np.where(judged, detrended, np.nan)), graph, permutations=config.permutations, seed=config.seed,
-        keys=point_keys(prepared.xy, prepared.values),
+        clipped(np.where(judged, detrended, np.nan)), graph, permutations=config.permutations, seed=config.seed,
+        keys=point_keys(prepared.xy, prepared.values), counts=engine.permutation_counts,
     )
     timings["local_autocorrelation_s"] = time.perf_counter() - t
 
@@ -462,7 +311,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
 
     t = time.perf_counter()
     trended = trend_info.get("method", "none") != "none"
-    strips, strip_layer = _strips(prepared, detrended if trended else None)
+    strips, strip_layer = strips_layer(prepared, detrended if trended else None)
     timings["strips_s"] = time.perf_counter() - t
 
     level_local = None
@@ -578,12 +427,13 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
             "permutations": config.permutations,
             "points_with_more_permutations": int((autocorr.permutations > config.permutations).sum()),
             "p_adjustment": "Benjamini-Hochberg",
-            "standardization": (f"values clipped at the median +- {_CLIP_SD:g} robust sd (1.4826 x MAD) before the "
+            "standardization": (f"values clipped at the median +- {CLIP_SD:g} robust sd (1.4826 x MAD) before the "
                                 "mean/sd standardization, so gross errors neither inflate the sd nor squash the scatter"),
             "quadrant_column": "filled only where the adjusted p passes the fdr",
             "fdr": config.fdr,
         },
         **spatial_info,
+        engine=engine.record(),
         counts=counts,
         timings_s={k: round(v, 4) for k, v in timings.items()},
     )
@@ -592,7 +442,7 @@ def screen_frame(frame: gpd.GeoDataFrame, config: ScreenConfig, *, source: Sourc
         frame=out,
         counts=counts,
         run_info=run_info,
-        tables={"strips": strip_layer, **_spatial_tables(
+        tables={"strips": strip_layer, **spatial_tables(
             lag_screen, variogram, prepared, status=added["screen_status"], coherent=local.coherent,
             raw_ids=_raw_ids(frame, config, prepared), detrended=trend_info.get("method", "none") != "none")},
         prepared=prepared,

@@ -431,6 +431,7 @@ def local_autocorrelation(
     seed: int = 0,
     refine: bool = True,
     keys: np.ndarray | None = None,
+    counts=None,
 ) -> LocalAutocorrelation:
     """Local Moran's I and Gi* with conditional permutation p-values.
 
@@ -451,6 +452,12 @@ def local_autocorrelation(
     keys : ndarray of uint64, optional
         Identity of each point (:func:`point_keys`). Without it the row
         number is the identity, so results then depend on the row order.
+    counts : callable, optional
+        Counts the draws of the rows (default: here, on every core); an
+        engine passes its own (:mod:`pointsift.engine`: the rows on a
+        cluster's workers). It takes the arguments of the module's
+        ``_conditional_counts`` and must return its result; rows are
+        independent, so any split of them gives the same counts.
 
     Returns
     -------
@@ -503,7 +510,7 @@ def local_autocorrelation(
         identity = np.asarray(keys, dtype=np.uint64)[used][rows]
     extended = 100 * (permutations + 1) - 1 if refine else permutations
     tolerance = 1e-12 * max(1.0, float(np.abs(z_sorted[[0, -1]]).max()))
-    ge, le, draws = _conditional_counts(
+    ge, le, draws = (counts or _conditional_counts)(
         z_sorted, np.searchsorted(z_sorted, z[rows], side="left"), lag_sum[rows], k_rows[rows].astype(np.int64),
         _stream_keys(identity, seed), int(permutations), int(extended), seed, tolerance,
     )
