@@ -7,35 +7,11 @@ distance h is ordinary. This module estimates it from the same lag pairs as
 
 Sources
 -------
-- Matheron estimator: Matheron, G. (1962), *Traite de geostatistique
-  appliquee*, tome I; ``gamma(h) = sum (z_i - z_j)^2 / (2 N(h))``.
-- Cressie-Hawkins estimator: Cressie, N. and Hawkins, D. M. (1980), Robust
-  estimation of the variogram, *Math. Geol.* 12, 115-125; Cressie, N. (1993),
-  *Statistics for Spatial Data*, rev. ed., eq. 2.4.12::
-
-      2 gamma(h) = { N(h)^-1 sum |z_i - z_j|^(1/2) }^4 / (0.457 + 0.494 / N(h))
-
-  which is the *variogram*; the semivariogram reported here is half of it.
-  (Cressie and Hawkins 1980 add ``0.045 / N(h)^2`` to the denominator;
-  scikit-gstat follows that form.)
-- Weighted least squares: Cressie, N. (1985), Fitting variogram models by
-  weighted least squares, *Math. Geol.* 17, 563-586: minimise
-  ``sum_k N(h_k) {gamma_hat(h_k) / gamma(h_k; theta) - 1}^2``, i.e. weights
-  ``N(h_k) / gamma(h_k; theta)^2``.
-- Models (nugget ``c0``, partial sill ``c``, range parameter ``a``), Cressie
-  (1993) section 2.3.1 and Webster, R. and Oliver, M. A. (2007),
-  *Geostatistics for Environmental Scientists*, 2nd ed., ch. 5 (from memory):
-  spherical ``c0 + c (1.5 h/a - 0.5 (h/a)^3)`` for ``h <= a``, else
-  ``c0 + c`` (practical range ``a``); exponential ``c0 + c (1 - exp(-h/a))``
-  (practical range ``3a``, where 95 % of the sill is reached); Gaussian
-  ``c0 + c (1 - exp(-(h/a)^2))`` (practical range ``sqrt(3) a``).
+- Estimators (Matheron; Cressie-Hawkins) and the default lag classes: see
+  :mod:`pointsift.methods.variogram_empirical`, whose docstring cites them.
+- Models and the weighted least-squares fit (Cressie 1985): see
+  :mod:`pointsift.methods.variogram_fit`.
 - Square-root-difference cloud: Cressie (1993) section 2.4 (from memory).
-- Default lag classes: cutoff one third of the bounding-box diagonal, 15
-  classes (the defaults of the gstat R package, from memory), widened to at
-  least half the point spacing so the first classes are not empty.
-
-Lag classes are ``(e_0, e_1], (e_1, e_2], ...``: a pair at separation 0
-(coincident records) is in no class.
 
 The estimators are in :mod:`pointsift.methods.variogram_empirical`, the
 models and fits in :mod:`pointsift.methods.variogram_fit` (their names are
