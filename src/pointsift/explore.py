@@ -331,25 +331,20 @@ def describe_scale(prepared: Prepared, config=None, where: str = "the layer"):
         of the log values (or None), the depth-to-water summary (or None),
         the context record and the notes.
     """
-    from .judging import STRONG_SKEW, skewness
+    from .judging import skew_check
 
-    usable = prepared.usable
-    values = np.where(usable, prepared.values, np.nan)
     transform = getattr(config, "transform", "none") or "none"
     quantity = getattr(config, "quantity", "level") or "level"
-    skew = skewness(values)
-    positive = bool(usable.any() and (values[usable] > 0).all())
-    strongly = bool(np.isfinite(skew) and skew >= STRONG_SKEW and positive)
-    scale = {"quantity": quantity, "transform_option": transform,
-             "skewness": None if not np.isfinite(skew) else round(skew, 3), "strongly_skewed_positive": strongly,
-             "scale": "the values"}
+    check = skew_check(prepared.values, prepared.usable, transform, quantity)
+    skew = check.skewness
+    scale = {**check.record(quantity, transform), "scale": "the values"}
     notes: list[str] = []
     described = judged_summary = None
-    if transform == "log" or (transform == "auto" and strongly and quantity != "level"):
-        described = np.where(usable & (values > 0), np.log(np.where(values > 0, values, 1.0)), np.nan)
+    if check.use_log:
+        described = check.log_values
         judged_summary = global_summary(described[np.isfinite(described)])
         scale["scale"] = "log of the values (natural log); the summary also in the original units"
-        dropped = int((usable & ~np.isfinite(described)).sum())
+        dropped = int((prepared.usable & ~np.isfinite(described)).sum())
         scale["rows_not_positive"] = dropped
         notes.append(
             f"Described on the log scale (transform {transform}"
@@ -357,11 +352,8 @@ def describe_scale(prepared: Prepared, config=None, where: str = "the layer"):
             f"of the natural log; skewness of the logs {_fmt(judged_summary.skewness)}"
             + (f"; {dropped} value{'s' if dropped != 1 else ''} not positive left out" if dropped else "") + "."
         )
-    elif strongly:
-        notes.append(
-            f"The values are strongly skewed (skewness {skew:.2f}, all positive): a symmetric screen flags the long "
-            "tail; consider transform log (--transform log, or auto)."
-        )
+    elif check.strongly:
+        notes.append(check.advice())
     if config is None:
         return scale, described, judged_summary, None, {}, tuple(notes)
     depth_summary, context_info, context_notes = _context_description(prepared, config, where, quantity)

@@ -23,7 +23,7 @@ from .config import ScreenConfig
 from .context import Context
 from .methods.local import LocalResult
 
-__all__ = ["Judging", "choose_judging", "skewness", "STRONG_SKEW"]
+__all__ = ["Judging", "choose_judging", "skewness", "STRONG_SKEW", "SkewCheck", "skew_check"]
 
 #: Sample skewness from which a positive variable counts as strongly skewed
 #: (common practice: beyond 1 the right tail dominates a symmetric screen).
@@ -43,6 +43,51 @@ def skewness(values: np.ndarray) -> float:
     d = v - v.mean()
     m2, m3 = np.mean(d * d), np.mean(d * d * d)
     return float(np.sqrt(n * (n - 1)) / (n - 2) * m3 / m2**1.5)
+
+
+@dataclass(frozen=True)
+class SkewCheck:
+    """Whether a layer is strongly skewed and whether it is judged (or described) on the log scale.
+
+    Attributes
+    ----------
+    skewness : float
+        :func:`skewness` of the usable values (NaN when it cannot be measured).
+    strongly : bool
+        Skewness at least :data:`STRONG_SKEW` and every usable value positive.
+    use_log : bool
+        ``transform="log"``, or ``"auto"`` for a strongly skewed variable that is not a level.
+    log_values : ndarray or None
+        Natural log per row where usable and positive, NaN elsewhere (None unless ``use_log``).
+    """
+
+    skewness: float
+    strongly: bool
+    use_log: bool
+    log_values: np.ndarray | None
+
+    def record(self, quantity: str, transform: str) -> dict:
+        """The run record's entries for the skew decision."""
+        return {"quantity": quantity, "transform_option": transform,
+                "skewness": None if not np.isfinite(self.skewness) else round(self.skewness, 3),
+                "strongly_skewed_positive": self.strongly}
+
+    def advice(self) -> str:
+        """The note for a strongly skewed variable judged on its own scale."""
+        return (f"The values are strongly skewed (skewness {self.skewness:.2f}, all positive): a symmetric screen "
+                "flags the long tail; consider transform log (--transform log, or auto).")
+
+
+def skew_check(values: np.ndarray, usable: np.ndarray, transform: str, quantity: str) -> SkewCheck:
+    """The skew decision shared by the screen (:func:`choose_judging`) and ``describe``."""
+    skew = skewness(np.where(usable, values, np.nan))
+    positive = bool(usable.any() and (values[usable] > 0).all())
+    strongly = bool(np.isfinite(skew) and skew >= STRONG_SKEW and positive)
+    use_log = transform == "log" or (transform == "auto" and strongly and quantity != "level")
+    logs = None
+    if use_log:
+        logs = np.where(usable & (values > 0), np.log(np.where(values > 0, values, 1.0)), np.nan)
+    return SkewCheck(skew, strongly, use_log, logs)
 
 
 @dataclass(frozen=True)
@@ -112,26 +157,19 @@ def choose_judging(values: np.ndarray, usable: np.ndarray, context: Context, con
     """
     n = values.size
     unjudged = np.full(n, "", dtype=object)
-    skew = skewness(np.where(usable, values, np.nan))
-    positive = bool(usable.any() and (values[usable] > 0).all())
-    strongly = bool(np.isfinite(skew) and skew >= STRONG_SKEW and positive)
-    record = {"quantity": config.quantity, "transform_option": config.transform,
-              "skewness": None if not np.isfinite(skew) else round(skew, 3), "strongly_skewed_positive": strongly}
+    check = skew_check(values, usable, config.transform, config.quantity)
+    skew, strongly = check.skewness, check.strongly
+    record = check.record(config.quantity, config.transform)
     notes: list[str] = []
-    use_log = config.transform == "log" or (config.transform == "auto" and strongly and config.quantity != "level")
-    if use_log:
+    if check.use_log:
         bad = usable & ~(values > 0)
         unjudged[bad] = "value is not positive, so it cannot be judged on the log scale (transform log)"
-        judged = np.where(usable & ~bad, np.log(np.where(values > 0, values, 1.0)), np.nan)
         record["scale"] = "log of the values"
         if strongly:
             notes.append(f"The values are strongly skewed (skewness {skew:.2f}); judged on the log scale.")
-        return Judging("log", judged, None, unjudged, record, tuple(notes))
+        return Judging("log", check.log_values, None, unjudged, record, tuple(notes))
     if strongly:
-        notes.append(
-            f"The values are strongly skewed (skewness {skew:.2f}, all positive): a symmetric screen flags the long tail; "
-            "consider transform log (--transform log, or auto)."
-        )
+        notes.append(check.advice())
     if config.quantity == "level" and context.has_ground and config.land_surface_use != "none":
         if config.land_surface_use in ("depth", "auto"):
             missing = usable & ~np.isfinite(context.ground)
