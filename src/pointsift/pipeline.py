@@ -314,11 +314,13 @@ def _screen(frame, config: ScreenConfig, source, engine) -> ScreenResult:
     strips, strip_layer = strips_layer(prepared, detrended if trended else None)
     timings["strips_s"] = time.perf_counter() - t
 
+    # the levels' own judgement: for the misplaced-well check, and (depth to water is judged
+    # only for a level with a ground elevation) for records at one spot
     level_local = None
-    if config.quantity == "level" and context.has_ground or (stations.duplicate >= 0).any():
+    if config.quantity == "level" and context.has_ground:
         level_local = level_residuals(prepared, judging, graph, local, config, judged_ok)
     same_spot_z, same_spot_scale = local.z, judged_local.scale
-    if level_local is not None and judging.mode == "depth to water":
+    if judging.mode == "depth to water":
         same_spot_z, same_spot_scale = coincident_z(judging, local, level_local)
     coincident = coincident_conflicts(
         judging.judged if judging.mode == "log" else prepared.values,

@@ -16,6 +16,7 @@ import numpy as np
 
 from .config import ScreenConfig
 from .errors import InputError
+from .methods.robust import MAD_TO_SD
 from .methods.strips import strip_summary
 from .prepare import Prepared
 
@@ -140,7 +141,7 @@ def clipped(values: np.ndarray) -> np.ndarray:
     if finite.sum() < 3:
         return values
     centre = np.median(values[finite])
-    spread = 1.482602218505602 * np.median(np.abs(values[finite] - centre))
+    spread = MAD_TO_SD * np.median(np.abs(values[finite] - centre))
     if not spread > 0:
         return values
     return np.where(finite, np.clip(values, centre - CLIP_SD * spread, centre + CLIP_SD * spread), values)
